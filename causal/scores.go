@@ -1,0 +1,340 @@
+package causal
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"sort"
+	"strings"
+)
+
+// FitOption tunes the propensity model.
+type FitOption func(*logitOptions)
+
+// Ridge adds the penalty (λ/2)·Σ(s_j β_j)² on the covariate coefficients
+// (s_j: root mean square of design column j; the intercept is not penalised).
+// λ = 0, the default, is plain maximum likelihood.
+func Ridge(lambda float64) FitOption { return func(o *logitOptions) { o.ridge = lambda } }
+
+// MaxIterations caps the Newton iterations (default 50).
+func MaxIterations(k int) FitOption { return func(o *logitOptions) { o.maxIter = k } }
+
+// Term is one coefficient of the propensity model.
+type Term struct {
+	Name string  `json:"term"`
+	Coef float64 `json:"coef"`
+	SE   float64 `json:"se"`
+	// Z is Coef/SE (Wald statistic).
+	Z float64 `json:"z"`
+	// Diverging marks a coefficient driven toward ±∞ by separation: its value
+	// is where the iterations stopped, not an estimate.
+	Diverging bool `json:"diverging,omitempty"`
+}
+
+// Separation is a finding that treatment is deterministic in part of the data:
+// a positivity violation. Kind is "complete" (a covariate splits the arms
+// entirely) or "quasi-complete" (a level or range holds one arm only).
+type Separation struct {
+	Term    string `json:"term"`
+	Column  string `json:"column"`
+	Kind    string `json:"kind"`
+	Arm     string `json:"arm"` // the only arm present there: "treated" or "control"
+	Units   int    `json:"units"`
+	Message string `json:"message"`
+}
+
+// CalibrationBin is one score decile: mean score against the share treated.
+type CalibrationBin struct {
+	Lo, Hi       float64 // score range of the bin
+	MeanScore    float64
+	ShareTreated float64
+	N            int
+}
+
+// Scores are fitted propensity scores e(x) = P(treated | x) with the model
+// report. Build with Study.Propensity.
+type Scores struct {
+	Design       *Design
+	E            []float64 // fitted score per used row
+	Terms        []Term
+	Iterations   int
+	Converged    bool
+	Deviance     float64
+	NullDeviance float64
+	// AUC is the c-statistic: the probability that a random treated unit has
+	// a higher score than a random control (ties count ½; Hanley & McNeil 1982).
+	AUC         float64
+	Calibration []CalibrationBin
+	Separation  []Separation
+	Ridge       float64
+	// Extreme counts units with fitted scores within 1e-8 of 0 or 1.
+	Extreme int
+
+	beta []float64
+	cov  []float64
+	opts logitOptions
+	err  error
+}
+
+// Err returns why the scores could not be computed, or nil.
+func (s *Scores) Err() error {
+	if s == nil {
+		return errors.New("nil Scores")
+	}
+	return s.err
+}
+
+// Coefficients returns a copy of β (design-column order).
+func (s *Scores) Coefficients() []float64 { return append([]float64(nil), s.beta...) }
+
+// Separated reports whether treatment is deterministic somewhere.
+func (s *Scores) Separated() bool { return len(s.Separation) > 0 }
+
+// Propensity fits the propensity model: a logistic regression of treatment on
+// the covariates with an intercept (see fitLogistic for the algorithm) and
+// reports terms, standard errors, convergence, deviance, AUC, calibration by
+// score deciles and separation. Separation — a covariate level or range in
+// which every unit is in one arm — is a positivity violation and is reported
+// in Separation, naming the column or level; the coefficients it drives
+// toward ±∞ are marked Diverging rather than shown as estimates.
+func (s *Study) Propensity(opts ...FitOption) *Scores {
+	d, err := s.Design()
+	if err != nil {
+		return &Scores{err: err}
+	}
+	o := logitOptions{}
+	for _, f := range opts {
+		f(&o)
+	}
+	return propensityFor(d, o)
+}
+
+func propensityFor(d *Design, o logitOptions) *Scores {
+	sc := &Scores{Design: d, Ridge: o.ridge, opts: o}
+	sc.Separation = findSeparation(d)
+	fit, err := fitLogistic(d.X, d.N, d.P, d.T, nil, nil, o)
+	if err != nil {
+		sc.err = fmt.Errorf("propensity model: %w", err)
+		return sc
+	}
+	sc.beta, sc.cov, sc.E = fit.beta, fit.cov, fit.e
+	sc.Iterations, sc.Converged = fit.iterations, fit.converged
+	sc.Deviance, sc.NullDeviance = fit.deviance, fit.nullDev
+	for _, e := range sc.E {
+		if e < 1e-8 || e > 1-1e-8 {
+			sc.Extreme++
+		}
+	}
+	diverging := map[string]bool{}
+	for _, f := range sc.Separation {
+		diverging[f.Term] = true
+	}
+	if o.ridge == 0 && sc.Extreme > 0 && (fit.maxStdCoef > 10 || !fit.converged) && len(sc.Separation) == 0 {
+		// Separation by a combination of covariates: name the terms with the
+		// largest standardised coefficients.
+		type tz struct {
+			name string
+			v    float64
+		}
+		var big []tz
+		for j := 1; j < d.P; j++ {
+			v := math.Abs(fit.beta[j]) * rmsCol(d, j)
+			if v > 5 {
+				big = append(big, tz{d.Terms[j].Name, v})
+			}
+		}
+		sort.Slice(big, func(a, b int) bool { return big[a].v > big[b].v })
+		var names []string
+		for _, b := range big {
+			names = append(names, b.name)
+			diverging[b.name] = true
+		}
+		sc.Separation = append(sc.Separation, Separation{
+			Term: strings.Join(names, "+"), Kind: "quasi-complete", Units: sc.Extreme,
+			Message: fmt.Sprintf("%d units have fitted scores of 0 or 1: a combination of %s predicts treatment exactly there", sc.Extreme, strings.Join(names, ", ")),
+		})
+	}
+	for j := 0; j < d.P; j++ {
+		t := Term{Name: d.Terms[j].Name, Coef: fit.beta[j], SE: math.Sqrt(fit.cov[j*d.P+j])}
+		t.Z = t.Coef / t.SE
+		if o.ridge == 0 && diverging[t.Name] {
+			t.Diverging = true
+		}
+		sc.Terms = append(sc.Terms, t)
+	}
+	if o.ridge == 0 && len(sc.Separation) > 0 {
+		// The intercept diverges with an indicator whose other side is pure.
+		for j := range sc.Terms {
+			if math.Abs(sc.Terms[j].Coef) > 15 {
+				sc.Terms[j].Diverging = true
+			}
+		}
+	}
+	sc.AUC = auc(sc.E, d.T)
+	sc.Calibration = calibration(sc.E, d.T, 10)
+	return sc
+}
+
+func rmsCol(d *Design, j int) float64 {
+	var s float64
+	for i := 0; i < d.N; i++ {
+		v := d.X[i*d.P+j]
+		s += v * v
+	}
+	return math.Sqrt(s / float64(d.N))
+}
+
+// findSeparation looks, before any fit, for covariate levels and ranges that
+// hold one arm only: for a 0/1 term or categorical level, all units at that
+// level in one arm (quasi-complete separation); for a numeric covariate, the
+// arms' ranges not overlapping (complete separation).
+func findSeparation(d *Design) []Separation {
+	var out []Separation
+	arm := func(t float64) string {
+		if t == 1 {
+			return "treated"
+		}
+		return "control"
+	}
+	for ci, c := range d.Covariates {
+		if c.Kind == Categorical {
+			nl := len(c.Levels)
+			n1 := make([]int, nl)
+			n0 := make([]int, nl)
+			for k, i := range d.Rows {
+				if d.T[k] == 1 {
+					n1[c.Codes[i]]++
+				} else {
+					n0[c.Codes[i]]++
+				}
+			}
+			for l := 0; l < nl; l++ {
+				if n1[l]+n0[l] == 0 || (n1[l] > 0 && n0[l] > 0) {
+					continue
+				}
+				a, m := "treated", n1[l]
+				if n1[l] == 0 {
+					a, m = "control", n0[l]
+				}
+				term := c.Name + "=" + c.Levels[l]
+				out = append(out, Separation{Term: term, Column: c.Name, Kind: "quasi-complete", Arm: a, Units: m,
+					Message: fmt.Sprintf("all %d units with %s are %s: treatment is deterministic there (positivity violated)", m, term, plural(m, a+" unit", a+"s"))})
+			}
+			continue
+		}
+		j := termIndex(d, c.Name)
+		_ = ci
+		if j < 0 {
+			continue
+		}
+		if d.Terms[j].Binary {
+			var n1, n0 [2]int
+			for k := 0; k < d.N; k++ {
+				v := int(d.X[k*d.P+j])
+				if d.T[k] == 1 {
+					n1[v]++
+				} else {
+					n0[v]++
+				}
+			}
+			for v := 0; v < 2; v++ {
+				if n1[v]+n0[v] == 0 || (n1[v] > 0 && n0[v] > 0) {
+					continue
+				}
+				a, m := "treated", n1[v]
+				if n1[v] == 0 {
+					a, m = "control", n0[v]
+				}
+				term := fmt.Sprintf("%s=%d", c.Name, v)
+				out = append(out, Separation{Term: c.Name, Column: c.Name, Kind: "quasi-complete", Arm: a, Units: m,
+					Message: fmt.Sprintf("all %d units with %s are %s: treatment is deterministic there (positivity violated)", m, term, plural(m, a+" unit", a+"s"))})
+			}
+			continue
+		}
+		lo1, hi1, lo0, hi0 := math.Inf(1), math.Inf(-1), math.Inf(1), math.Inf(-1)
+		for k := 0; k < d.N; k++ {
+			v := d.X[k*d.P+j]
+			if d.T[k] == 1 {
+				lo1, hi1 = math.Min(lo1, v), math.Max(hi1, v)
+			} else {
+				lo0, hi0 = math.Min(lo0, v), math.Max(hi0, v)
+			}
+		}
+		if hi1 < lo0 || hi0 < lo1 {
+			msg := fmt.Sprintf("%s separates the arms completely: treated range [%g, %g], control range [%g, %g] do not overlap (positivity violated)", c.Name, lo1, hi1, lo0, hi0)
+			out = append(out, Separation{Term: c.Name, Column: c.Name, Kind: "complete", Arm: arm(1) + "/" + arm(0), Units: d.N, Message: msg})
+		}
+	}
+	return out
+}
+
+func termIndex(d *Design, name string) int {
+	for j, t := range d.Terms {
+		if t.Name == name {
+			return j
+		}
+	}
+	return -1
+}
+
+// auc is the Mann–Whitney form of the c-statistic: (R1 − n1(n1+1)/2)/(n1 n0)
+// with R1 the sum of the treated units' mid-ranks (Hanley & McNeil 1982).
+func auc(e, t []float64) float64 {
+	n := len(e)
+	idx := make([]int, n)
+	for i := range idx {
+		idx[i] = i
+	}
+	sort.Slice(idx, func(a, b int) bool { return e[idx[a]] < e[idx[b]] })
+	var r1, n1 float64
+	for i := 0; i < n; {
+		j := i
+		for j < n && e[idx[j]] == e[idx[i]] {
+			j++
+		}
+		mid := float64(i+j+1) / 2 // ranks i+1..j
+		for k := i; k < j; k++ {
+			if t[idx[k]] == 1 {
+				r1 += mid
+				n1++
+			}
+		}
+		i = j
+	}
+	n0 := float64(n) - n1
+	return (r1 - n1*(n1+1)/2) / (n1 * n0)
+}
+
+// calibration groups units by score quantile (bins of equal count; ties kept
+// together) and compares the mean score with the share treated in each.
+func calibration(e, t []float64, bins int) []CalibrationBin {
+	n := len(e)
+	idx := make([]int, n)
+	for i := range idx {
+		idx[i] = i
+	}
+	sort.Slice(idx, func(a, b int) bool { return e[idx[a]] < e[idx[b]] })
+	var out []CalibrationBin
+	start := 0
+	for b := 1; b <= bins && start < n; b++ {
+		end := n * b / bins
+		if b == bins {
+			end = n
+		}
+		for end < n && end > 0 && e[idx[end]] == e[idx[end-1]] {
+			end++
+		}
+		if end <= start {
+			continue
+		}
+		var se, st float64
+		for _, i := range idx[start:end] {
+			se += e[i]
+			st += t[i]
+		}
+		m := float64(end - start)
+		out = append(out, CalibrationBin{Lo: e[idx[start]], Hi: e[idx[end-1]], MeanScore: se / m, ShareTreated: st / m, N: end - start})
+		start = end
+	}
+	return out
+}

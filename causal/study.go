@@ -1,0 +1,471 @@
+package causal
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"sort"
+	"strings"
+	"sync"
+)
+
+// Study is a data set with roles: a treatment, an outcome and the covariates
+// to adjust for. It is built fluently; each step returns a new Study and
+// leaves the receiver unchanged:
+//
+//	s := causal.Load("audits.csv").Treat("audit").TreatedLevel("yes").
+//		Outcome("litres_per_day").Adjust("household_size", "lot_m2", "district")
+//
+// An error at any step (a missing file, an unknown column) is kept inside and
+// returned by Err, and by every result computed from the Study.
+type Study struct {
+	src          Source
+	file         string
+	treat        string
+	treatedLevel string
+	outcome      string
+	covariates   []string
+	asCategory   map[string]bool
+	dropIncomp   bool
+	err          error
+
+	once sync.Once
+	prep *Design
+	perr error
+}
+
+// Load reads a CSV file (see ParseCSV) into a new Study with no roles yet.
+func Load(path string) *Study {
+	f, err := ReadCSV(path)
+	s := &Study{file: path, err: err}
+	if err == nil {
+		s.src = f
+	}
+	return s
+}
+
+// FromSource starts a Study on any Source, such as a Frame built with NewFrame.
+func FromSource(src Source) *Study {
+	if src == nil {
+		return &Study{err: errors.New("no data: the source is nil")}
+	}
+	return &Study{src: src}
+}
+
+func (s *Study) clone() *Study {
+	if s == nil {
+		return &Study{err: errors.New("nil Study: start with causal.Load or causal.FromSource")}
+	}
+	c := &Study{src: s.src, file: s.file, treat: s.treat, treatedLevel: s.treatedLevel,
+		outcome: s.outcome, covariates: append([]string(nil), s.covariates...),
+		dropIncomp: s.dropIncomp, err: s.err, asCategory: map[string]bool{}}
+	for k, v := range s.asCategory {
+		c.asCategory[k] = v
+	}
+	return c
+}
+
+// Treat names the treatment column. It must have exactly two values: 0/1,
+// true/false, or any two labels together with TreatedLevel.
+func (s *Study) Treat(column string) *Study { c := s.clone(); c.treat = column; return c }
+
+// TreatedLevel names which of the treatment column's two values means treated
+// (needed unless the values are 0/1 or true/false).
+func (s *Study) TreatedLevel(level string) *Study { c := s.clone(); c.treatedLevel = level; return c }
+
+// Outcome names the outcome column (numeric).
+func (s *Study) Outcome(column string) *Study { c := s.clone(); c.outcome = column; return c }
+
+// Adjust sets the covariates to adjust for (replacing any set before).
+func (s *Study) Adjust(columns ...string) *Study {
+	c := s.clone()
+	c.covariates = append([]string(nil), columns...)
+	return c
+}
+
+// AsCategory makes numeric columns categorical (e.g. numeric codes for regions).
+func (s *Study) AsCategory(columns ...string) *Study {
+	c := s.clone()
+	for _, col := range columns {
+		c.asCategory[col] = true
+	}
+	return c
+}
+
+// DropIncomplete drops rows with a missing value in any role column. The
+// number dropped is reported by Design().RowsDropped and in every report.
+// Without it, missing values are an error that names each column and count.
+func (s *Study) DropIncomplete() *Study { c := s.clone(); c.dropIncomp = true; return c }
+
+// Err returns the first error met while building the Study or resolving its
+// roles, or nil.
+func (s *Study) Err() error {
+	if s == nil {
+		return errors.New("nil Study: start with causal.Load or causal.FromSource")
+	}
+	if s.err != nil {
+		return s.err
+	}
+	if s.treat == "" {
+		return nil // roles not complete yet; checked when used
+	}
+	_, err := s.Design()
+	return err
+}
+
+// Roles reports the role columns.
+type Roles struct {
+	Treatment    string   `json:"treatment"`
+	TreatedLevel string   `json:"treated_level,omitempty"`
+	Outcome      string   `json:"outcome,omitempty"`
+	Covariates   []string `json:"covariates"`
+}
+
+// Roles returns the roles as set so far.
+func (s *Study) Roles() Roles {
+	return Roles{Treatment: s.treat, TreatedLevel: s.treatedLevel, Outcome: s.outcome, Covariates: append([]string{}, s.covariates...)}
+}
+
+// Source returns the underlying data source (nil if loading failed).
+func (s *Study) Source() Source { return s.src }
+
+// Term is one column of the design matrix.
+type TermInfo struct {
+	Name     string // column name, or "column=level" for a categorical level, or "(intercept)"
+	Column   string // the covariate it comes from ("" for the intercept)
+	Level    string // the level for an indicator term
+	Binary   bool   // the term only takes the values 0 and 1
+	RefLevel string // for an indicator term: the covariate's reference level
+}
+
+// Design is a Study resolved into arrays: the rows used, the treatment as
+// 0/1, the outcome, and the design matrix of the covariates with an intercept
+// in column 0 (row-major, n × p). Categorical covariates are coded as one
+// indicator per level except the reference level, which is the most frequent
+// level (ties broken alphabetically).
+type Design struct {
+	N           int       // rows used
+	RowsTotal   int       // rows in the data
+	RowsDropped int       // rows dropped as incomplete (DropIncomplete)
+	Rows        []int     // original 0-based row index of each used row
+	T           []float64 // 1 treated, 0 control
+	Y           []float64 // outcome (nil when no outcome is set)
+	X           []float64 // n × p row-major, column 0 = 1
+	P           int
+	Terms       []TermInfo
+	Treated     int
+	Control     int
+	Covariates  []*Column // the covariate columns as read
+	roles       Roles
+}
+
+// Row returns row i of the design matrix (a view, do not modify).
+func (d *Design) Row(i int) []float64 { return d.X[i*d.P : (i+1)*d.P] }
+
+// Col copies design column j.
+func (d *Design) Col(j int) []float64 {
+	out := make([]float64, d.N)
+	for i := range out {
+		out[i] = d.X[i*d.P+j]
+	}
+	return out
+}
+
+// Roles of the study this design was resolved from.
+func (d *Design) Roles() Roles { return d.roles }
+
+// Design resolves the roles into arrays, once; later calls return the same
+// value. Every problem is an error naming the column (and row, where there is
+// one) and what to do.
+func (s *Study) Design() (*Design, error) {
+	if s == nil {
+		return nil, errors.New("nil Study: start with causal.Load or causal.FromSource")
+	}
+	if s.err != nil {
+		return nil, s.err
+	}
+	s.once.Do(func() { s.prep, s.perr = s.resolve() })
+	return s.prep, s.perr
+}
+
+func (s *Study) resolve() (*Design, error) {
+	if s.src == nil {
+		return nil, errors.New("no data loaded")
+	}
+	if s.treat == "" {
+		return nil, errors.New("no treatment column: call .Treat(\"column\")")
+	}
+	seen := map[string]string{s.treat: "treatment"}
+	if s.outcome != "" {
+		if r, dup := seen[s.outcome]; dup {
+			return nil, fmt.Errorf("column %q is both the %s and the outcome", s.outcome, r)
+		}
+		seen[s.outcome] = "outcome"
+	}
+	for _, c := range s.covariates {
+		if r, dup := seen[c]; dup {
+			if r == "covariate" {
+				return nil, fmt.Errorf("covariate %q is listed twice in Adjust", c)
+			}
+			return nil, fmt.Errorf("column %q is the %s and cannot also be a covariate", c, r)
+		}
+		seen[c] = "covariate"
+	}
+	tcol, err := s.column(s.treat, "treatment")
+	if err != nil {
+		return nil, err
+	}
+	var ycol *Column
+	if s.outcome != "" {
+		if ycol, err = s.column(s.outcome, "outcome"); err != nil {
+			return nil, err
+		}
+		if ycol.Kind != Numeric {
+			return nil, fmt.Errorf("outcome %q is not numeric (it has text values such as %q): choose a numeric outcome", s.outcome, ycol.Levels[0])
+		}
+	}
+	covs := make([]*Column, len(s.covariates))
+	for i, name := range s.covariates {
+		if covs[i], err = s.column(name, "covariate"); err != nil {
+			return nil, err
+		}
+	}
+	n := s.src.Rows()
+
+	// Missing values.
+	all := append([]*Column{tcol}, covs...)
+	if ycol != nil {
+		all = append(all, ycol)
+	}
+	var miss []string
+	incomplete := make([]bool, n)
+	nInc := 0
+	for _, c := range all {
+		if c.Missing == 0 {
+			continue
+		}
+		miss = append(miss, fmt.Sprintf("%s (%d)", c.Name, c.Missing))
+		for i := 0; i < n; i++ {
+			if !incomplete[i] && c.IsMissing(i) {
+				incomplete[i] = true
+				nInc++
+			}
+		}
+	}
+	if nInc > 0 && !s.dropIncomp {
+		return nil, fmt.Errorf("missing values in %s: %d row%s incomplete; fill them in, or call .DropIncomplete() to drop those rows (the report then says how many were dropped)",
+			strings.Join(miss, ", "), nInc, plural(nInc, " is", "s are"))
+	}
+	rows := make([]int, 0, n-nInc)
+	for i := 0; i < n; i++ {
+		if !incomplete[i] {
+			rows = append(rows, i)
+		}
+	}
+	if len(rows) == 0 {
+		return nil, errors.New("no complete rows remain after dropping incomplete rows")
+	}
+
+	// Treatment.
+	t, err := treatmentVector(tcol, s.treatedLevel, rows)
+	if err != nil {
+		return nil, err
+	}
+	d := &Design{N: len(rows), RowsTotal: n, RowsDropped: nInc, Rows: rows, T: t, Covariates: covs, roles: s.Roles()}
+	for _, v := range t {
+		if v == 1 {
+			d.Treated++
+		}
+	}
+	d.Control = d.N - d.Treated
+	if d.Treated == 0 || d.Control == 0 {
+		arm := "treated"
+		if d.Control == 0 {
+			arm = "control"
+		}
+		return nil, fmt.Errorf("all %d units are %s: the treatment column %q needs units in both arms", d.N, arm, s.treat)
+	}
+	if ycol != nil {
+		d.Y = make([]float64, d.N)
+		for k, i := range rows {
+			d.Y[k] = ycol.Num[i]
+		}
+	}
+
+	// Terms.
+	d.Terms = []TermInfo{{Name: "(intercept)", Binary: false}}
+	type src struct {
+		col   *Column
+		level int32 // -1 for numeric
+	}
+	srcs := []src{{}}
+	for _, c := range covs {
+		if c.Kind == Numeric {
+			lo, hi := math.Inf(1), math.Inf(-1)
+			bin := true
+			for _, i := range rows {
+				v := c.Num[i]
+				lo, hi = math.Min(lo, v), math.Max(hi, v)
+				if v != 0 && v != 1 {
+					bin = false
+				}
+			}
+			if lo == hi {
+				return nil, fmt.Errorf("covariate %q is constant (every used row is %g): it carries no information; remove it from Adjust", c.Name, lo)
+			}
+			d.Terms = append(d.Terms, TermInfo{Name: c.Name, Column: c.Name, Binary: bin})
+			srcs = append(srcs, src{col: c, level: -1})
+			continue
+		}
+		counts := make([]int, len(c.Levels))
+		for _, i := range rows {
+			counts[c.Codes[i]]++
+		}
+		used := 0
+		ref := -1
+		for l, k := range counts {
+			if k > 0 {
+				used++
+				if ref < 0 || k > counts[ref] {
+					ref = l
+				}
+			}
+		}
+		if used < 2 {
+			return nil, fmt.Errorf("covariate %q has a single level (%q) in the rows used: it carries no information; remove it from Adjust", c.Name, c.Levels[ref])
+		}
+		for l, k := range counts {
+			if l == ref || k == 0 {
+				continue
+			}
+			d.Terms = append(d.Terms, TermInfo{Name: c.Name + "=" + c.Levels[l], Column: c.Name, Level: c.Levels[l], Binary: true, RefLevel: c.Levels[ref]})
+			srcs = append(srcs, src{col: c, level: int32(l)})
+		}
+	}
+	d.P = len(d.Terms)
+	if d.P >= d.N {
+		return nil, fmt.Errorf("the model has %d terms (intercept, covariates and category levels) but only %d rows: drop covariates or merge rare levels", d.P, d.N)
+	}
+	d.X = make([]float64, d.N*d.P)
+	for k, i := range rows {
+		row := d.X[k*d.P : (k+1)*d.P]
+		row[0] = 1
+		for j := 1; j < d.P; j++ {
+			sc := srcs[j]
+			if sc.level < 0 {
+				row[j] = sc.col.Num[i]
+			} else if sc.col.Codes[i] == sc.level {
+				row[j] = 1
+			}
+		}
+	}
+	if err := checkRank(d); err != nil {
+		return nil, err
+	}
+	return d, nil
+}
+
+func (s *Study) column(name, role string) (*Column, error) {
+	c, err := s.src.Column(name)
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", role, err)
+	}
+	if c.issue != nil {
+		return nil, fmt.Errorf("%s %w", role, c.issue)
+	}
+	if s.asCategory[name] && c.Kind == Numeric {
+		vals := make([]string, len(c.Num))
+		for i, v := range c.Num {
+			if !math.IsNaN(v) {
+				vals[i] = fmt.Sprint(v)
+			}
+		}
+		c = categorical(name, vals)
+	}
+	return c, nil
+}
+
+func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
+	t := make([]float64, len(rows))
+	var levels []string
+	if c.Kind == Numeric {
+		set := map[float64]bool{}
+		for _, i := range rows {
+			set[c.Num[i]] = true
+			if len(set) > 3 {
+				break
+			}
+		}
+		for v := range set {
+			levels = append(levels, fmt.Sprint(v))
+		}
+		sort.Strings(levels)
+		if len(set) == 2 && set[0] && set[1] && (treated == "" || treated == "1") {
+			for k, i := range rows {
+				t[k] = c.Num[i]
+			}
+			return t, nil
+		}
+		if len(set) == 2 && treated != "" {
+			// Two numeric codes with the treated one named.
+			var tv float64
+			if _, err := fmt.Sscan(treated, &tv); err != nil || !set[tv] {
+				return nil, fmt.Errorf("treatment %q: treated level %q is not one of its values %s", c.Name, treated, strings.Join(levels, ", "))
+			}
+			for k, i := range rows {
+				if c.Num[i] == tv {
+					t[k] = 1
+				}
+			}
+			return t, nil
+		}
+	} else {
+		present := map[int32]bool{}
+		for _, i := range rows {
+			present[c.Codes[i]] = true
+		}
+		for l := range c.Levels {
+			if present[int32(l)] {
+				levels = append(levels, c.Levels[l])
+			}
+		}
+		if len(levels) == 2 {
+			tl := treated
+			if tl == "" {
+				a, b := strings.ToLower(levels[0]), strings.ToLower(levels[1])
+				if a == "false" && b == "true" {
+					tl = levels[1]
+				} else {
+					return nil, fmt.Errorf("treatment %q has the labels %q and %q: say which one is treated with .TreatedLevel(%q) (or --treated-level)", c.Name, levels[0], levels[1], levels[1])
+				}
+			}
+			code := int32(-1)
+			for l, name := range c.Levels {
+				if name == tl {
+					code = int32(l)
+				}
+			}
+			if code < 0 || !present[code] {
+				return nil, fmt.Errorf("treatment %q: treated level %q is not one of its values %q, %q", c.Name, tl, levels[0], levels[1])
+			}
+			for k, i := range rows {
+				if c.Codes[i] == code {
+					t[k] = 1
+				}
+			}
+			return t, nil
+		}
+	}
+	switch {
+	case len(levels) < 2:
+		return nil, fmt.Errorf("treatment %q has a single value (%s) in the rows used: a comparison needs a treated and a control arm", c.Name, strings.Join(levels, ""))
+	case len(levels) > 2:
+		shown := levels
+		if len(shown) > 3 {
+			shown = append(shown[:3:3], "…")
+		}
+		return nil, fmt.Errorf("treatment %q has more than two values (%s): it must be binary; recode it to two levels", c.Name, strings.Join(shown, ", "))
+	default:
+		return nil, fmt.Errorf("treatment %q has the values %s: use 0/1, or name the treated value with .TreatedLevel", c.Name, strings.Join(levels, " and "))
+	}
+}

@@ -1,0 +1,203 @@
+// Package kernel is the only part of counterpart that talks to Jupyter through
+// the GoNB kernel. It shows results (Show), reports progress (Progress) and
+// finds the ECharts library that charts need. Outside a notebook the same
+// calls print plain text, so code runs unchanged in a terminal or a test.
+//
+// In a notebook cell:
+//
+//	import "github.com/counterpartlab/counterpart/kernel"
+//	%%
+//	kernel.Show(result, chart, err)
+package kernel
+
+import (
+	"fmt"
+	"html/template"
+	"io"
+	"os"
+	"path/filepath"
+	"strings"
+	"sync"
+	"time"
+
+	"github.com/counterpartlab/counterpart/widgets"
+	"github.com/janpfeifer/gonb/gonbui"
+	"github.com/janpfeifer/gonb/gonbui/protocol"
+)
+
+// HTMLPageEnv names the environment variable that, outside a notebook, asks
+// Show to also write everything it showed as one HTML page at that path.
+const HTMLPageEnv = "COUNTERPART_HTML"
+
+// IsNotebook reports whether the program runs as a GoNB notebook cell.
+func IsNotebook() bool { return gonbui.IsNotebook }
+
+var (
+	showMu sync.Mutex
+	// libraryShown is set once the ECharts library went out with a display in
+	// this process (a notebook cell is one process).
+	libraryShown bool
+	// pageParts collects, outside a notebook, what was shown, for HTMLPageEnv.
+	pageParts []string
+	// stdout is where the text form goes outside a notebook (a variable for tests).
+	stdout io.Writer = os.Stdout
+	// syncTimeout bounds the wait for GoNB to confirm it received a display.
+	syncTimeout = 10 * time.Second
+)
+
+type htmler interface{ HTML() string }
+
+// Show displays each value: an error as an error panel, a value with an
+// HTML() string method as that HTML, a value with String() as preformatted
+// text, anything else as fmt prints it. In a notebook all values go out as
+// ONE display message carrying text/html and text/plain. The first display
+// in a process that holds a chart also carries the ECharts library, so saved
+// and exported notebooks draw offline.
+//
+// Outside a notebook Show prints the text form to standard output and, when
+// COUNTERPART_HTML is set to a path, (re)writes an HTML page there with
+// everything shown so far by the process.
+//
+// Show never panics: a value whose methods panic is shown as an error panel.
+func Show(xs ...any) {
+	defer func() {
+		if r := recover(); r != nil {
+			// Rendering itself is guarded per value; this catches a failure
+			// while sending, which leaves nothing better to do than say so.
+			fmt.Fprintf(os.Stderr, "counterpart: showing output failed: %v\n", r)
+		}
+	}()
+	if len(xs) == 0 {
+		return
+	}
+	htmlParts := make([]string, 0, len(xs))
+	textParts := make([]string, 0, len(xs))
+	for _, x := range xs {
+		h, t := render(x)
+		htmlParts = append(htmlParts, h)
+		textParts = append(textParts, t)
+	}
+	html := strings.Join(htmlParts, "\n")
+	text := strings.Join(textParts, "\n")
+
+	showMu.Lock()
+	defer showMu.Unlock()
+	if IsNotebook() {
+		var b strings.Builder
+		if !libraryShown && strings.Contains(html, widgets.ChartMarker) {
+			b.WriteString(libraryHTML())
+			libraryShown = true
+		}
+		b.WriteString(widgets.Style())
+		b.WriteString(`<div class="cp-output">`)
+		b.WriteString(html)
+		b.WriteString(`</div>`)
+		gonbui.SendData(&protocol.DisplayData{Data: map[protocol.MIMEType]any{
+			protocol.MIMETextHTML:  b.String(),
+			protocol.MIMETextPlain: text,
+		}})
+		syncWithKernel()
+		return
+	}
+	fmt.Fprintln(stdout, text)
+	if path := os.Getenv(HTMLPageEnv); path != "" {
+		pageParts = append(pageParts, htmlParts...)
+		if err := writePage(path, pageParts); err != nil {
+			fmt.Fprintf(os.Stderr, "counterpart: %s=%s: %v\n", HTMLPageEnv, path, err)
+		}
+	}
+}
+
+// syncWithKernel waits until GoNB has taken the messages sent so far, so that
+// a cell ending right after Show does not lose its output; it gives up after
+// syncTimeout.
+func syncWithKernel() {
+	done := make(chan struct{})
+	go func() {
+		defer close(done)
+		gonbui.Sync()
+	}()
+	select {
+	case <-done:
+	case <-time.After(syncTimeout):
+	}
+}
+
+// render returns the HTML and text forms of one value, turning a panic in
+// the value's own methods into an error panel.
+func render(x any) (html, text string) {
+	defer func() {
+		if r := recover(); r != nil {
+			err := fmt.Errorf("showing a %T failed: %v", x, r)
+			html, text = widgets.ErrorPanel(err), widgets.ErrorText(err)
+		}
+	}()
+	switch v := x.(type) {
+	case nil:
+		return pre("<nil>"), "<nil>"
+	case error:
+		return widgets.ErrorPanel(v), widgets.ErrorText(v)
+	case template.HTML:
+		return string(v), "[html]"
+	case htmler:
+		h := v.HTML()
+		if s, ok := x.(fmt.Stringer); ok {
+			return h, s.String()
+		}
+		return h, fmt.Sprintf("[%T: open in a notebook to see it]", x)
+	case fmt.Stringer:
+		s := v.String()
+		return pre(s), s
+	case string:
+		return pre(v), v
+	default:
+		s := fmt.Sprint(v)
+		return pre(s), s
+	}
+}
+
+func pre(s string) string {
+	return `<pre class="cp-text">` + template.HTMLEscapeString(s) + `</pre>`
+}
+
+// writePage writes the page atomically (temp file, then rename).
+func writePage(path string, parts []string) error {
+	js, err := EChartsJS()
+	body := parts
+	if err != nil {
+		body = append([]string{cdnFallbackHTML(err)}, parts...)
+		js = nil
+	}
+	title := "counterpart · " + filepath.Base(os.Args[0])
+	tmp := path + ".tmp"
+	if err := os.WriteFile(tmp, []byte(widgets.Page(title, body, js)), 0o644); err != nil {
+		return err
+	}
+	return os.Rename(tmp, path)
+}
+
+// libraryHTML returns the ECharts library as a script element, or, when the
+// local copy is missing, the last-resort loader from a CDN with a visible note.
+func libraryHTML() string {
+	js, err := EChartsJS()
+	if err != nil {
+		return cdnFallbackHTML(err)
+	}
+	return widgets.LibraryScript(js)
+}
+
+// EChartsCDN is where charts load ECharts from when no local copy exists.
+// It is the last resort: `counterpart setup` places a local copy.
+const EChartsCDN = "https://cdn.jsdelivr.net/npm/echarts@" + EChartsVersion + "/dist/echarts.min.js"
+
+func cdnFallbackHTML(cause error) string {
+	return `<div class="cp-note">` + template.HTMLEscapeString(
+		"Charts will load ECharts "+EChartsVersion+" from the internet, because the local copy is missing ("+
+			widgets.ErrorMessage(cause)+"). Run `counterpart setup` so notebooks draw offline.") + `</div>` +
+		// RequireJS pages would capture the bundle as an AMD module; hide define while it loads.
+		`<script>(function(){if(window.echarts||window.__cpEChartsLoading)return;window.__cpEChartsLoading=true;` +
+		`var s=document.createElement("script"),d=window.define;window.define=undefined;` +
+		`s.onload=s.onerror=function(){window.define=d;};s.src=` + fmt.Sprintf("%q", EChartsCDN) +
+		`;document.head.appendChild(s);})();</script>`
+}
+

@@ -1,0 +1,77 @@
+package widgets
+
+import (
+	"html/template"
+	"strings"
+)
+
+// Hinter is implemented by errors that know what the user should do next.
+// ErrorPanel shows the hint under the message.
+type Hinter interface {
+	Hint() string
+}
+
+const defaultHint = "Check the column, row or setting named above, fix it, and run the cell again."
+
+// ErrorHint returns the hint shown with err: its own (see Hinter) or a
+// general one.
+func ErrorHint(err error) string {
+	if err == nil {
+		return ""
+	}
+	if h, ok := err.(Hinter); ok {
+		if s := strings.TrimSpace(h.Hint()); s != "" {
+			return s
+		}
+	}
+	return defaultHint
+}
+
+// ErrorMessage returns err's message without anything that looks like a
+// goroutine dump, trimmed of trailing blank lines. Line breaks are kept.
+func ErrorMessage(err error) string {
+	if err == nil {
+		return ""
+	}
+	msg := err.Error()
+	if i := strings.Index(msg, "\ngoroutine "); i >= 0 {
+		msg = msg[:i]
+	}
+	if strings.HasPrefix(msg, "goroutine ") {
+		msg = "internal error (details withheld)"
+	}
+	msg = strings.TrimRight(msg, " \t\r\n")
+	if msg == "" {
+		msg = "unknown error (the error carried no message)"
+	}
+	return msg
+}
+
+// ErrorText is the terminal form of an error panel.
+func ErrorText(err error) string {
+	if err == nil {
+		return ""
+	}
+	return "error: " + ErrorMessage(err) + "\nhint: " + ErrorHint(err)
+}
+
+var errorTemplate = template.Must(template.New("error").Parse(
+	`<div class="cp-error" role="alert">` +
+		`<div class="cp-error-title">Error</div>` +
+		`<div class="cp-error-msg" style="white-space:pre-wrap">{{.Message}}</div>` +
+		`<div class="cp-hint">{{.Hint}}</div>` +
+		`</div>`))
+
+// ErrorPanel shows err as a readable panel: the message escaped, its line
+// breaks kept, and a hint line under it. It never shows a stack trace. A nil
+// error gives the empty string.
+func ErrorPanel(err error) string {
+	if err == nil {
+		return ""
+	}
+	var b strings.Builder
+	if e := errorTemplate.Execute(&b, struct{ Message, Hint string }{ErrorMessage(err), ErrorHint(err)}); e != nil {
+		return `<div class="cp-error" role="alert">` + template.HTMLEscapeString(ErrorMessage(err)) + `</div>`
+	}
+	return b.String()
+}
