@@ -39,6 +39,13 @@ type Cell struct {
 	Empty bool `json:"violation"`
 	// Thin: an arm has units but fewer than the Thin threshold.
 	Thin bool `json:"thin"`
+	// Chance is, for a cell with an empty arm, the probability that a cell
+	// of this size would lack that arm if every unit had the overall share of
+	// treated units: (1−p)^n for a cell without treated units, p^n for one
+	// without controls (p = treated share). A small value (below 0.05)
+	// marks the empty arm as structural rather than a sampling zero — a
+	// screening rule of common practice, no source. 1 for cells with both arms.
+	Chance float64 `json:"chance"`
 }
 
 // Cut describes how one covariate was cut.
@@ -59,6 +66,8 @@ type Cells struct {
 	Options CellOptions
 	// Totals.
 	Violating        int     // cells with an empty arm
+	Structural       int     // violating cells whose empty arm is unlikely by chance (Cell.Chance < 0.05)
+	UnitsStructural  int     // units in structural violating cells
 	ThinCells        int     // cells with a thin (but not empty) arm
 	UnitsViolating   int     // units in violating cells
 	ShareViolating   float64 // UnitsViolating / N
@@ -280,9 +289,21 @@ func buildCells(d *Design, columns []string, codes [][]int32, cuts []Cut, o Cell
 			c.cellOf[i] = index[k]
 		}
 	}
+	p := float64(d.Treated) / float64(n)
 	for r := range c.Rows {
 		cell := &c.Rows[r]
+		cell.Chance = 1
 		if cell.Treated == 0 || cell.Control == 0 {
+			m := float64(cell.Treated + cell.Control)
+			if cell.Treated == 0 {
+				cell.Chance = math.Pow(1-p, m)
+			} else {
+				cell.Chance = math.Pow(p, m)
+			}
+			if cell.Chance < 0.05 {
+				c.Structural++
+				c.UnitsStructural += cell.Treated + cell.Control
+			}
 			cell.Empty = true
 			c.Violating++
 			c.UnitsViolating += cell.Treated + cell.Control

@@ -14,13 +14,13 @@ type rRef struct {
 		Value, SE float64
 	} `json:"difference_in_means"`
 	GLM struct {
-		Terms         []string  `json:"terms"`
-		Coef          []float64 `json:"coef"`
-		SE            []float64 `json:"se"`
-		Deviance      float64   `json:"deviance"`
-		NullDeviance  float64   `json:"null_deviance"`
-		AUC           float64   `json:"auc"`
-		Fitted        []float64 `json:"fitted"`
+		Terms        []string  `json:"terms"`
+		Coef         []float64 `json:"coef"`
+		SE           []float64 `json:"se"`
+		Deviance     float64   `json:"deviance"`
+		NullDeviance float64   `json:"null_deviance"`
+		AUC          float64   `json:"auc"`
+		Fitted       []float64 `json:"fitted"`
 	} `json:"glm"`
 	Balance map[string]struct {
 		SMD           float64  `json:"smd"`

@@ -50,6 +50,8 @@ type Verdict struct {
 	Reasons   []string `json:"reasons"`
 	Supported []string `json:"supported_estimands"`
 	Remedy    string   `json:"remedy"`
+	// Notes are findings too small to change the status.
+	Notes []string `json:"notes"`
 	// Trimming to [Extreme, 1 − Extreme] would drop these units.
 	TrimThreshold float64        `json:"trim_threshold"`
 	TrimTreated   int            `json:"trim_drops_treated"`
@@ -69,9 +71,12 @@ func (v *Verdict) Err() error {
 // Verdict judges positivity from the scores and any positivity tables given.
 // Rules (each threshold in VerdictOptions, with its source):
 //   - violated: separation (treatment deterministic for a covariate level or
-//     range), a cell with an empty arm, or no common-support band at all;
+//     range), a cell with an empty arm that chance does not explain
+//     (Cell.Chance < 0.05), or no common-support band at all;
 //   - limited: a share of units outside the band above MaxShareOutside, a
-//     share of extreme scores above MaxShareExtreme, or thin cells;
+//     share of extreme scores above MaxShareExtreme, or sparse cells (thin,
+//     or lacking an arm by what may be chance) holding more than
+//     MaxShareOutside of the units (fewer: a note);
 //   - adequate otherwise.
 //
 // Supported estimands: ATE only without violations; ATT when every treated
@@ -89,7 +94,7 @@ func (sc *Scores) Verdict(o VerdictOptions, cells ...*Cells) *Verdict {
 		}
 	}
 	o = o.withDefaults()
-	v := &Verdict{Options: o, TrimThreshold: o.Extreme, Reasons: []string{}}
+	v := &Verdict{Options: o, TrimThreshold: o.Extreme, Reasons: []string{}, Notes: []string{}}
 	sup := sc.Support()
 	d := sc.Design
 	violated, limited := false, false
@@ -112,32 +117,59 @@ func (sc *Scores) Verdict(o VerdictOptions, cells ...*Cells) *Verdict {
 		v.Reasons = append(v.Reasons, "no common support: the score ranges of the arms do not overlap")
 	}
 	for _, c := range cells {
-		if c.Violating > 0 {
+		if c.Structural > 0 {
 			violated = true
-			if c.TreatedViolating > 0 {
-				treatedOnly = true
+			for _, r := range c.Rows {
+				if r.Empty && r.Chance < 0.05 {
+					if r.Treated > 0 {
+						treatedOnly = true
+					} else {
+						controlOnly = true
+					}
+				}
 			}
-			if c.ControlViolating > 0 {
-				controlOnly = true
-			}
-			v.Reasons = append(v.Reasons, fmt.Sprintf("positivity cells (%s): %d of %d cells have an empty arm, holding %d units (%.1f%%): %d treated without controls, %d controls without treated units",
-				strings.Join(c.Columns, " × "), c.Violating, len(c.Rows), c.UnitsViolating, 100*c.ShareViolating, c.TreatedViolating, c.ControlViolating))
+			v.Reasons = append(v.Reasons, fmt.Sprintf("positivity cells (%s): %d of %d cells have an empty arm that chance does not explain, holding %d units (%.1f%%); %d cells with an empty arm in all: %d treated without controls, %d controls without treated units",
+				strings.Join(c.Columns, " × "), c.Structural, len(c.Rows), c.UnitsStructural, 100*float64(c.UnitsStructural)/float64(c.N), c.Violating, c.TreatedViolating, c.ControlViolating))
 		}
-		if c.ThinCells > 0 {
-			limited = true
-			v.Reasons = append(v.Reasons, fmt.Sprintf("positivity cells (%s): %d thin cells (an arm with fewer than %d units)", strings.Join(c.Columns, " × "), c.ThinCells, c.Options.Thin))
+		// Thin cells and small cells lacking an arm by what may be chance:
+		// limited when they hold more than MaxShareOutside of the units,
+		// otherwise a note.
+		sparse, sparseCells := 0, 0
+		for _, r := range c.Rows {
+			if r.Thin || (r.Empty && r.Chance >= 0.05) {
+				sparse += r.Treated + r.Control
+				sparseCells++
+			}
+		}
+		if sparseCells > 0 {
+			share := float64(sparse) / float64(c.N)
+			msg := fmt.Sprintf("positivity cells (%s): %d sparse cells (an arm with fewer than %d units, or missing in a cell small enough for chance) hold %d units (%.1f%%)",
+				strings.Join(c.Columns, " × "), sparseCells, c.Options.Thin, sparse, 100*share)
+			if share > o.MaxShareOutside {
+				limited = true
+				v.Reasons = append(v.Reasons, msg)
+			} else {
+				v.Notes = append(v.Notes, msg)
+			}
 		}
 	}
 	if share := sup.ShareOutside(); share > o.MaxShareOutside {
 		limited = true
 		v.Reasons = append(v.Reasons, fmt.Sprintf("%.1f%% of units lie outside the common-support band [%.3f, %.3f] (threshold %.0f%%)", 100*share, sup.Band.Lo, sup.Band.Hi, 100*o.MaxShareOutside))
 	}
-	// Treated above every control score, controls below every treated score.
-	if sup.TreatedRange.Hi > sup.ControlRange.Hi {
-		treatedOnly = treatedOnly || sup.OutsideTreated > 0
+	// Treated units scored above every control (or controls below every
+	// treated unit) have no comparable units in the other arm; a handful is
+	// expected by chance at the tails, so only a share above MaxShareOutside
+	// of the arm withdraws the ATT (or ATC).
+	if sup.TreatedRange.Hi > sup.ControlRange.Hi || sup.TreatedRange.Lo < sup.ControlRange.Lo {
+		if float64(sup.OutsideTreated)/float64(sup.Treated) > o.MaxShareOutside {
+			treatedOnly = true
+		}
 	}
-	if sup.ControlRange.Lo < sup.TreatedRange.Lo {
-		controlOnly = controlOnly || sup.OutsideControl > 0
+	if sup.ControlRange.Lo < sup.TreatedRange.Lo || sup.ControlRange.Hi > sup.TreatedRange.Hi {
+		if float64(sup.OutsideControl)/float64(sup.Control) > o.MaxShareOutside {
+			controlOnly = true
+		}
 	}
 	var ext int
 	for i, e := range sc.E {
@@ -196,6 +228,9 @@ func (v *Verdict) String() string {
 	fmt.Fprintf(&b, "Positivity verdict: %s\n", strings.ToUpper(v.Status))
 	for _, r := range v.Reasons {
 		fmt.Fprintf(&b, "  - %s\n", r)
+	}
+	for _, r := range v.Notes {
+		fmt.Fprintf(&b, "  note: %s\n", r)
 	}
 	fmt.Fprintf(&b, "  estimands the data support: %s\n", strings.Join(v.Supported, ", "))
 	fmt.Fprintf(&b, "  remedy: %s\n", v.Remedy)

@@ -16,9 +16,11 @@ const (
 	WaterAuditsN           = 4000
 )
 
-// Districts lists the districts of the WaterAudits scenario in the order
-// used by the generator.
-var Districts = []string{"north", "south", "east", "west", "harbour"}
+var districts = []string{"north", "south", "east", "west", "harbour"}
+
+// Districts returns the districts of the WaterAudits scenario in the order
+// used by the generator (a fresh copy each call).
+func Districts() []string { return append([]string(nil), districts...) }
 
 const waterStream = 0x7761746572617564 // "wateraud"
 
@@ -120,7 +122,7 @@ func WaterAudits(seed uint64, n int) (*Data, error) {
 	for i := 0; i < n; i++ {
 		d := int(districtDist.Rand())
 		k := int(incomeDist[d].Rand())
-		district[i] = Districts[d]
+		district[i] = districts[d]
 		income[i] = incomeNames[k]
 		incIdx[i] = k
 		size[i] = sizeDist.Rand() + 1

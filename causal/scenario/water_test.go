@@ -87,7 +87,7 @@ func TestWaterAuditsProblems(t *testing.T) {
 		arms[w.str(i, "district")] = a
 		lots[i] = w.num(t, i, "lot_m2")
 	}
-	for _, d := range Districts {
+	for _, d := range Districts() {
 		switch {
 		case d == "harbour" && (arms[d][1] != 0 || arms[d][0] == 0):
 			t.Errorf("harbour: %d not audited, %d audited; want households but none audited", arms[d][0], arms[d][1])
@@ -99,7 +99,7 @@ func TestWaterAuditsProblems(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, d := range Districts {
+	for _, d := range Districts() {
 		if row := fmt.Sprintf("| %s | %d | %d |", d, arms[d][0], arms[d][1]); !strings.Contains(string(readme), row) {
 			t.Errorf("testdata/README.md lacks the table row %q; update it", row)
 		}

@@ -1,0 +1,273 @@
+package jupyter
+
+import (
+	"context"
+	"encoding/json"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"regexp"
+	"strings"
+	"time"
+)
+
+// RunOptions configures Run. Zero values choose the defaults.
+type RunOptions struct {
+	Notebook    string        // the .ipynb to execute
+	HTML        string        // where to write the HTML export ("" = none)
+	Executed    string        // where to keep the executed notebook ("" = temporary)
+	KernelName  string        // default DefaultKernelName
+	CellTimeout time.Duration // per cell; default 15 minutes (the first cell compiles the imports)
+	Out         io.Writer     // progress lines; default os.Stdout
+}
+
+// CellError is a notebook cell that failed.
+type CellError struct {
+	Cell    int    // 1-based position among all cells of the notebook
+	Source  string // first line of the cell's source
+	Message string // what the kernel reported
+}
+
+// CellErrors is returned by Run when cells failed.
+type CellErrors []CellError
+
+func (ce CellErrors) Error() string {
+	var b strings.Builder
+	if len(ce) == 1 {
+		b.WriteString("1 cell failed:")
+	} else {
+		fmt.Fprintf(&b, "%d cells failed:", len(ce))
+	}
+	for _, e := range ce {
+		fmt.Fprintf(&b, "\ncell %d (%s): %s", e.Cell, e.Source, indent(e.Message))
+	}
+	return b.String()
+}
+
+func indent(s string) string { return strings.ReplaceAll(s, "\n", "\n    ") }
+
+// RunResult tells what Run did.
+type RunResult struct {
+	Cells    int           // code cells executed
+	Duration time.Duration // time spent executing
+	HTML     string        // path of the HTML export, if asked
+}
+
+// Run executes a notebook headless with the counterpart kernel through
+// `jupyter nbconvert --execute`, then exports it to HTML when asked. Every
+// cell runs even after one fails; any cell error makes Run return CellErrors
+// naming the cells (the HTML is still written, to look at).
+func Run(ctx context.Context, o RunOptions) (*RunResult, error) {
+	if o.Out == nil {
+		o.Out = os.Stdout
+	}
+	if o.KernelName == "" {
+		o.KernelName = DefaultKernelName
+	}
+	if o.CellTimeout <= 0 {
+		o.CellTimeout = 15 * time.Minute
+	}
+	nb, err := filepath.Abs(o.Notebook)
+	if err != nil {
+		return nil, err
+	}
+	if !fileExists(nb) {
+		return nil, fmt.Errorf("notebook %s not found", o.Notebook)
+	}
+	jupyterCmd, err := findJupyter()
+	if err != nil {
+		return nil, err
+	}
+	if _, err := output(ctx, "", nil, jupyterCmd, "nbconvert", "--version"); err != nil {
+		return nil, fmt.Errorf("jupyter nbconvert does not run (%s): %s", firstLine(err.Error()), aptJupyter)
+	}
+	if err := checkKernelInstalled(ctx, jupyterCmd, o.KernelName); err != nil {
+		return nil, err
+	}
+
+	tmp, err := os.MkdirTemp("", "counterpart-run-")
+	if err != nil {
+		return nil, err
+	}
+	defer os.RemoveAll(tmp)
+	name := strings.TrimSuffix(filepath.Base(nb), filepath.Ext(nb))
+	executed := filepath.Join(tmp, name+".ipynb")
+
+	fmt.Fprintf(o.Out, "executing %s with kernel %q ...\n", o.Notebook, o.KernelName)
+	t0 := time.Now()
+	_, err = output(ctx, filepath.Dir(nb), nil, jupyterCmd, "nbconvert",
+		"--to", "notebook", "--execute", "--allow-errors",
+		"--ExecutePreprocessor.kernel_name="+o.KernelName,
+		fmt.Sprintf("--ExecutePreprocessor.timeout=%d", int(o.CellTimeout.Seconds())),
+		"--ExecutePreprocessor.startup_timeout=120",
+		"--output-dir", tmp, "--output", name,
+		nb)
+	if err != nil {
+		return nil, fmt.Errorf("executing %s failed: %w", o.Notebook, err)
+	}
+	res := &RunResult{Duration: time.Since(t0)}
+
+	data, err := os.ReadFile(executed)
+	if err != nil {
+		return nil, fmt.Errorf("nbconvert wrote no executed notebook: %w", err)
+	}
+	cellErrs, codeCells, err := ScanNotebook(data)
+	if err != nil {
+		return nil, fmt.Errorf("reading the executed notebook: %w", err)
+	}
+	res.Cells = codeCells
+	fmt.Fprintf(o.Out, "executed %d code cells in %s, %d failed\n", codeCells, res.Duration.Round(100*time.Millisecond), len(cellErrs))
+
+	if o.Executed != "" {
+		if err := os.WriteFile(o.Executed, data, 0o644); err != nil {
+			return nil, err
+		}
+	}
+	if o.HTML != "" {
+		out, err := exportHTML(ctx, jupyterCmd, executed, o.HTML)
+		if err != nil {
+			return nil, err
+		}
+		res.HTML = out
+		fmt.Fprintf(o.Out, "HTML written to %s\n", out)
+	}
+	if len(cellErrs) > 0 {
+		return res, cellErrs
+	}
+	return res, nil
+}
+
+func checkKernelInstalled(ctx context.Context, jupyterCmd, name string) error {
+	out, err := output(ctx, "", nil, jupyterCmd, "kernelspec", "list", "--json")
+	if err != nil {
+		return fmt.Errorf("cannot list Jupyter kernels (%s): %s", firstLine(err.Error()), aptJupyter)
+	}
+	var list struct {
+		Kernelspecs map[string]json.RawMessage `json:"kernelspecs"`
+	}
+	if err := json.Unmarshal(out, &list); err != nil {
+		return fmt.Errorf("reading `jupyter kernelspec list --json`: %w", err)
+	}
+	if _, ok := list.Kernelspecs[name]; !ok {
+		return fmt.Errorf("kernel %q is not installed: run `counterpart setup` first", name)
+	}
+	return nil
+}
+
+// exportHTML converts the executed notebook to HTML at out.
+func exportHTML(ctx context.Context, jupyterCmd, executed, out string) (string, error) {
+	out, err := filepath.Abs(out)
+	if err != nil {
+		return "", err
+	}
+	dir := filepath.Dir(out)
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return "", err
+	}
+	base := strings.TrimSuffix(filepath.Base(out), ".html")
+	if _, err := output(ctx, filepath.Dir(executed), nil, jupyterCmd, "nbconvert", "--to", "html",
+		"--output-dir", dir, "--output", base, executed); err != nil {
+		return "", fmt.Errorf("exporting HTML: %w", err)
+	}
+	written := filepath.Join(dir, base+".html")
+	if written != out {
+		if err := os.Rename(written, out); err != nil {
+			return "", err
+		}
+	}
+	return out, nil
+}
+
+type notebookJSON struct {
+	Cells []struct {
+		CellType string          `json:"cell_type"`
+		Source   json.RawMessage `json:"source"`
+		Outputs  []struct {
+			OutputType string          `json:"output_type"`
+			Name       string          `json:"name"`
+			Text       json.RawMessage `json:"text"`
+			EName      string          `json:"ename"`
+			EValue     string          `json:"evalue"`
+			Traceback  []string        `json:"traceback"`
+		} `json:"outputs"`
+	} `json:"cells"`
+}
+
+// multiline decodes nbformat's "string or list of strings".
+func multiline(raw json.RawMessage) string {
+	if len(raw) == 0 {
+		return ""
+	}
+	var s string
+	if json.Unmarshal(raw, &s) == nil {
+		return s
+	}
+	var parts []string
+	if json.Unmarshal(raw, &parts) == nil {
+		return strings.Join(parts, "")
+	}
+	return ""
+}
+
+var ansi = regexp.MustCompile(`\x1b\[[0-9;]*[A-Za-z]`)
+
+// ScanNotebook finds the failed cells of an executed notebook. GoNB reports
+// a failed cell (a compile error, a non-zero exit, a panic) with an "error"
+// output; the compiler's or the panic's own words arrive before it on the
+// cell's stderr stream, so the message joins both.
+func ScanNotebook(data []byte) (CellErrors, int, error) {
+	var nb notebookJSON
+	if err := json.Unmarshal(data, &nb); err != nil {
+		return nil, 0, err
+	}
+	var errs CellErrors
+	code := 0
+	for i, c := range nb.Cells {
+		if c.CellType != "code" {
+			continue
+		}
+		code++
+		var stderr strings.Builder
+		var failure []string
+		for _, out := range c.Outputs {
+			switch out.OutputType {
+			case "stream":
+				if out.Name == "stderr" {
+					stderr.WriteString(multiline(out.Text))
+				}
+			case "error":
+				msg := strings.TrimSpace(ansi.ReplaceAllString(out.EValue, ""))
+				if msg == "" {
+					msg = out.EName
+				}
+				if msg == "" && len(out.Traceback) > 0 {
+					msg = strings.TrimSpace(ansi.ReplaceAllString(strings.Join(out.Traceback, "\n"), ""))
+				}
+				failure = append(failure, msg)
+			}
+		}
+		if len(failure) == 0 {
+			continue
+		}
+		msg := strings.Join(failure, "\n")
+		if s := strings.TrimSpace(ansi.ReplaceAllString(stderr.String(), "")); s != "" {
+			msg += "\n" + tail(s, 20)
+		}
+		errs = append(errs, CellError{Cell: i + 1, Source: firstSourceLine(multiline(c.Source)), Message: msg})
+	}
+	return errs, code, nil
+}
+
+func firstSourceLine(src string) string {
+	for _, l := range strings.Split(src, "\n") {
+		if l = strings.TrimSpace(l); l != "" {
+			if len(l) > 60 {
+				l = l[:57] + "..."
+			}
+			return l
+		}
+	}
+	return "empty cell"
+}
+
