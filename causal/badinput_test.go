@@ -1,6 +1,7 @@
 package causal
 
 import (
+	"fmt"
 	"math"
 	"strings"
 	"testing"
@@ -180,5 +181,60 @@ func TestScoresAtBoundsAndNoPanic(t *testing.T) {
 	}
 	if math.IsNaN(sc.AUC) {
 		t.Error("AUC NaN")
+	}
+}
+
+func TestSeparationVariants(t *testing.T) {
+	// gate = 0 ⇒ control (the level 0 side is pure), and a categorical whose
+	// reference (most frequent) level is pure, and a second pure level.
+	var b strings.Builder
+	b.WriteString("x,gate,zone,t\n")
+	for i := 0; i < 400; i++ {
+		x := float64(i%37) / 7
+		gate := i % 2
+		zone := []string{"a", "a", "a", "b", "c", "d"}[i%6]
+		t := 0
+		switch {
+		case zone == "a":
+			t = 0
+		case zone == "d":
+			t = 1
+		case gate == 1 && (i/2)%3 != 0:
+			t = 1
+		}
+		if gate == 0 && zone != "d" {
+			t = 0
+		}
+		fmt.Fprintf(&b, "%g,%d,%s,%d\n", x, gate, zone, t)
+	}
+	sc := studyFrom(t, b.String()).Treat("t").Adjust("x", "gate", "zone").Propensity()
+	if sc.Err() != nil {
+		t.Fatal(sc.Err())
+	}
+	if !sc.Separated() {
+		t.Fatal("no separation found")
+	}
+	var msgs []string
+	for _, f := range sc.Separation {
+		msgs = append(msgs, f.Message)
+	}
+	joined := strings.Join(msgs, "\n")
+	for _, want := range []string{"zone=a", "zone=d"} {
+		if !strings.Contains(joined, want) {
+			t.Errorf("findings do not name %s:\n%s", want, joined)
+		}
+	}
+	for _, tm := range sc.Terms {
+		if !tm.Diverging && (math.IsNaN(tm.Coef) || math.IsInf(tm.Coef, 0) || math.IsNaN(tm.SE)) {
+			t.Errorf("term %s has no finite estimate but is not marked diverging: %+v", tm.Name, tm)
+		}
+		if !tm.Diverging && math.Abs(tm.Coef) > 50 {
+			t.Errorf("term %s coefficient %g looks divergent but is shown as an estimate", tm.Name, tm.Coef)
+		}
+	}
+	for i, e := range sc.E {
+		if math.IsNaN(e) || e < 0 || e > 1 {
+			t.Fatalf("score %d = %g", i, e)
+		}
 	}
 }

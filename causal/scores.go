@@ -41,6 +41,8 @@ type Separation struct {
 	Arm     string `json:"arm"` // the only arm present there: "treated" or "control"
 	Units   int    `json:"units"`
 	Message string `json:"message"`
+
+	mask []bool // rows of the design where it holds (nil: all rows)
 }
 
 // CalibrationBin is one score decile: mean score against the share treated.
@@ -111,68 +113,287 @@ func (s *Study) Propensity(opts ...FitOption) *Scores {
 
 func propensityFor(d *Design, o logitOptions) *Scores {
 	sc := &Scores{Design: d, Ridge: o.ridge, opts: o}
-	sc.Separation = findSeparation(d)
-	fit, err := fitLogistic(d.X, d.N, d.P, d.T, nil, nil, o)
-	if err != nil {
-		sc.err = fmt.Errorf("propensity model: %w", err)
-		return sc
+	// Separation by covariate levels or ranges. Without a penalty the
+	// likelihood has no finite maximum; its supremum is reached with scores
+	// of exactly 0 or 1 for the separated units and, for the rest, the
+	// maximum-likelihood fit on the remaining units without the terms that
+	// are constant there. Fit that (repeating while the remaining units show
+	// new separation) so the other coefficients are finite estimates.
+	cur := d
+	keepCols := make([]int, d.P)
+	for j := range keepCols {
+		keepCols[j] = j
 	}
-	sc.beta, sc.cov, sc.E = fit.beta, fit.cov, fit.e
-	sc.Iterations, sc.Converged = fit.iterations, fit.converged
-	sc.Deviance, sc.NullDeviance = fit.deviance, fit.nullDev
+	pinned := make([]float64, d.N) // −1 free, else the fixed score 0 or 1
+	for i := range pinned {
+		pinned[i] = -1
+	}
+	interceptDiverges := false
+	diverging := map[string]bool{}
+	for round := 0; round < 6; round++ {
+		found := findSeparation(cur)
+		if len(found) == 0 {
+			break
+		}
+		sc.Separation = append(sc.Separation, found...)
+		if o.ridge > 0 {
+			break // a ridge penalty has a finite maximum: fit as is
+		}
+		drop := make([]bool, cur.N)
+		force := map[int]bool{}
+		for _, f := range found {
+			diverging[f.Term] = true
+			if f.Column != "" && termIndex(cur, f.Term) < 0 {
+				// The reference level of a categorical covariate is pure: the
+				// intercept and every level contrast diverge. Drop the
+				// indicator of the most frequent remaining level so the
+				// remaining units have a baseline again.
+				interceptDiverges = true
+				best, bestN := -1, -1.0
+				for j, tm := range cur.Terms {
+					if tm.Column == f.Column && tm.Level != "" {
+						diverging[tm.Name] = true
+						var n float64
+						for k := 0; k < cur.N; k++ {
+							n += cur.X[k*cur.P+j]
+						}
+						if n > bestN {
+							best, bestN = j, n
+						}
+					}
+				}
+				if best > 0 {
+					force[best] = true
+				}
+			}
+			for k := range drop {
+				if f.mask == nil || f.mask[k] {
+					drop[k] = true
+				}
+			}
+		}
+		var rows []int // indices into cur
+		for k := range drop {
+			if !drop[k] {
+				rows = append(rows, k)
+			} else {
+				pinned[origIndex(d, cur, k)] = cur.T[k]
+			}
+		}
+		next, kc, nonzeroDropped := subDesign(cur, rows, force)
+		if nonzeroDropped {
+			interceptDiverges = true
+		}
+		for _, j := range kcDropped(cur, kc) {
+			diverging[cur.Terms[j].Name] = true
+		}
+		mapped := make([]int, len(kc))
+		for a, j := range kc {
+			mapped[a] = keepCols[j]
+		}
+		keepCols = mapped
+		cur = next
+		if cur == nil {
+			break
+		}
+	}
+	sc.beta = make([]float64, d.P)
+	sc.cov = make([]float64, d.P*d.P)
+	for j := range sc.cov {
+		sc.cov[j] = math.NaN()
+	}
+	sc.E = make([]float64, d.N)
+	if cur == nil || cur.Treated == 0 || cur.Control == 0 {
+		// Every unit is separated: treatment is deterministic everywhere.
+		for i := range sc.E {
+			sc.E[i] = d.T[i]
+		}
+		for j := 0; j < d.P; j++ {
+			diverging[d.Terms[j].Name] = true
+		}
+		sc.Converged = false
+	} else {
+		fit, err := fitLogistic(cur.X, cur.N, cur.P, cur.T, nil, nil, o)
+		if err != nil {
+			sc.err = fmt.Errorf("propensity model: %w", err)
+			return sc
+		}
+		for a, j := range keepCols {
+			sc.beta[j] = fit.beta[a]
+			for b, k := range keepCols {
+				sc.cov[j*d.P+k] = fit.cov[a*cur.P+b]
+			}
+		}
+		// Scores: pinned units at 0 or 1, the others from the fit.
+		for i := 0; i < d.N; i++ {
+			if pinned[i] >= 0 {
+				sc.E[i] = pinned[i]
+				continue
+			}
+			row := d.X[i*d.P : (i+1)*d.P]
+			var eta float64
+			for _, j := range keepCols {
+				eta += row[j] * sc.beta[j]
+			}
+			sc.E[i] = sigmoid(eta)
+		}
+		sc.Iterations, sc.Converged = fit.iterations, fit.converged
+		sc.Deviance = fit.deviance
+		if o.ridge == 0 && len(sc.Separation) == 0 {
+			sc.combinationCheck(fit, diverging)
+		}
+	}
+	sc.NullDeviance = nullDeviance(d.T)
+	if interceptDiverges {
+		diverging["(intercept)"] = true
+	}
 	for _, e := range sc.E {
 		if e < 1e-8 || e > 1-1e-8 {
 			sc.Extreme++
 		}
 	}
-	diverging := map[string]bool{}
-	for _, f := range sc.Separation {
-		diverging[f.Term] = true
-	}
-	if o.ridge == 0 && sc.Extreme > 0 && (fit.maxStdCoef > 10 || !fit.converged) && len(sc.Separation) == 0 {
-		// Separation by a combination of covariates: name the terms with the
-		// largest standardised coefficients.
-		type tz struct {
-			name string
-			v    float64
-		}
-		var big []tz
-		for j := 1; j < d.P; j++ {
-			v := math.Abs(fit.beta[j]) * rmsCol(d, j)
-			if v > 5 {
-				big = append(big, tz{d.Terms[j].Name, v})
-			}
-		}
-		sort.Slice(big, func(a, b int) bool { return big[a].v > big[b].v })
-		var names []string
-		for _, b := range big {
-			names = append(names, b.name)
-			diverging[b.name] = true
-		}
-		sc.Separation = append(sc.Separation, Separation{
-			Term: strings.Join(names, "+"), Kind: "quasi-complete", Units: sc.Extreme,
-			Message: fmt.Sprintf("%d units have fitted scores of 0 or 1: a combination of %s predicts treatment exactly there", sc.Extreme, strings.Join(names, ", ")),
-		})
-	}
 	for j := 0; j < d.P; j++ {
-		t := Term{Name: d.Terms[j].Name, Coef: fit.beta[j], SE: math.Sqrt(fit.cov[j*d.P+j])}
+		t := Term{Name: d.Terms[j].Name, Coef: sc.beta[j], SE: math.Sqrt(sc.cov[j*d.P+j])}
 		t.Z = t.Coef / t.SE
-		if o.ridge == 0 && diverging[t.Name] {
+		if diverging[t.Name] {
 			t.Diverging = true
+			t.Coef, t.SE, t.Z = math.NaN(), math.NaN(), math.NaN()
 		}
 		sc.Terms = append(sc.Terms, t)
-	}
-	if o.ridge == 0 && len(sc.Separation) > 0 {
-		// The intercept diverges with an indicator whose other side is pure.
-		for j := range sc.Terms {
-			if math.Abs(sc.Terms[j].Coef) > 15 {
-				sc.Terms[j].Diverging = true
-			}
-		}
 	}
 	sc.AUC = auc(sc.E, d.T)
 	sc.Calibration = calibration(sc.E, d.T, 10)
 	return sc
+}
+
+func nullDeviance(t []float64) float64 {
+	var s float64
+	for _, v := range t {
+		s += v
+	}
+	p := s / float64(len(t))
+	return -2 * float64(len(t)) * (p*math.Log(p) + (1-p)*math.Log(1-p))
+}
+
+// origIndex maps row k of a sub-design back to its index in the full design.
+func origIndex(full, cur *Design, k int) int {
+	if cur == full {
+		return k
+	}
+	return cur.parent[k]
+}
+
+// subDesign keeps the given rows (indices into d) and drops the columns that
+// are constant on them (the intercept stays). It reports the kept columns and
+// whether a dropped column was constant at a non-zero value (then the
+// intercept of the full model is not identified either). nil when no rows
+// remain.
+func subDesign(d *Design, rows []int, force map[int]bool) (*Design, []int, bool) {
+	if len(rows) == 0 {
+		return nil, nil, false
+	}
+	var kc []int
+	nonzero := false
+	for j := 0; j < d.P; j++ {
+		if j == 0 {
+			kc = append(kc, 0)
+			continue
+		}
+		first := d.X[rows[0]*d.P+j]
+		constant := true
+		for _, k := range rows {
+			if d.X[k*d.P+j] != first {
+				constant = false
+				break
+			}
+		}
+		if force[j] {
+			continue
+		}
+		if !constant {
+			kc = append(kc, j)
+		} else if first != 0 {
+			nonzero = true
+		}
+	}
+	s := &Design{N: len(rows), RowsTotal: d.RowsTotal, P: len(kc), Covariates: d.Covariates, roles: d.roles}
+	s.X = make([]float64, s.N*s.P)
+	s.T = make([]float64, s.N)
+	s.Rows = make([]int, s.N)
+	s.parent = make([]int, s.N)
+	for a, j := range kc {
+		s.Terms = append(s.Terms, d.Terms[j])
+		_ = a
+	}
+	for r, k := range rows {
+		s.T[r] = d.T[k]
+		s.Rows[r] = d.Rows[k]
+		if d.parent != nil {
+			s.parent[r] = d.parent[k]
+		} else {
+			s.parent[r] = k
+		}
+		if s.T[r] == 1 {
+			s.Treated++
+		}
+		for a, j := range kc {
+			s.X[r*s.P+a] = d.X[k*d.P+j]
+		}
+	}
+	s.Control = s.N - s.Treated
+	return s, kc, nonzero
+}
+
+func kcDropped(d *Design, kc []int) []int {
+	keep := map[int]bool{}
+	for _, j := range kc {
+		keep[j] = true
+	}
+	var out []int
+	for j := 0; j < d.P; j++ {
+		if !keep[j] {
+			out = append(out, j)
+		}
+	}
+	return out
+}
+
+// combinationCheck flags separation by a combination of covariates: fitted
+// scores at 0 or 1 with coefficients growing without bound.
+func (sc *Scores) combinationCheck(fit *logitFit, diverging map[string]bool) {
+	d := sc.Design
+	extreme := 0
+	for _, e := range fit.e {
+		if e < 1e-8 || e > 1-1e-8 {
+			extreme++
+		}
+	}
+	if extreme == 0 || (fit.maxStdCoef <= 10 && fit.converged) {
+		return
+	}
+	// Separation by a combination of covariates: name the terms with the
+	// largest standardised coefficients.
+	type tz struct {
+		name string
+		v    float64
+	}
+	var big []tz
+	for j := 1; j < d.P; j++ {
+		v := math.Abs(fit.beta[j]) * rmsCol(d, j)
+		if v > 5 {
+			big = append(big, tz{d.Terms[j].Name, v})
+		}
+	}
+	sort.Slice(big, func(a, b int) bool { return big[a].v > big[b].v })
+	var names []string
+	for _, b := range big {
+		names = append(names, b.name)
+		diverging[b.name] = true
+	}
+	sc.Separation = append(sc.Separation, Separation{
+		Term: strings.Join(names, "+"), Kind: "quasi-complete", Units: extreme,
+		Message: fmt.Sprintf("%d units have fitted scores of 0 or 1: a combination of %s predicts treatment exactly there", extreme, strings.Join(names, ", ")),
+	})
 }
 
 func rmsCol(d *Design, j int) float64 {
@@ -217,7 +438,11 @@ func findSeparation(d *Design) []Separation {
 					a, m = "control", n0[l]
 				}
 				term := c.Name + "=" + c.Levels[l]
-				out = append(out, Separation{Term: term, Column: c.Name, Kind: "quasi-complete", Arm: a, Units: m,
+				mask := make([]bool, d.N)
+				for k, i := range d.Rows {
+					mask[k] = c.Codes[i] == int32(l)
+				}
+				out = append(out, Separation{Term: term, Column: c.Name, Kind: "quasi-complete", Arm: a, Units: m, mask: mask,
 					Message: fmt.Sprintf("all %d units with %s are %s: treatment is deterministic there (positivity violated)", m, term, plural(m, a+" unit", a+"s"))})
 			}
 			continue
@@ -246,7 +471,11 @@ func findSeparation(d *Design) []Separation {
 					a, m = "control", n0[v]
 				}
 				term := fmt.Sprintf("%s=%d", c.Name, v)
-				out = append(out, Separation{Term: c.Name, Column: c.Name, Kind: "quasi-complete", Arm: a, Units: m,
+				mask := make([]bool, d.N)
+				for k := range mask {
+					mask[k] = d.X[k*d.P+j] == float64(v)
+				}
+				out = append(out, Separation{Term: c.Name, Column: c.Name, Kind: "quasi-complete", Arm: a, Units: m, mask: mask,
 					Message: fmt.Sprintf("all %d units with %s are %s: treatment is deterministic there (positivity violated)", m, term, plural(m, a+" unit", a+"s"))})
 			}
 			continue

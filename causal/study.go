@@ -157,6 +157,7 @@ type Design struct {
 	Control     int
 	Covariates  []*Column // the covariate columns as read
 	roles       Roles
+	parent      []int // for a sub-design: row index in the full design
 }
 
 // Row returns row i of the design matrix (a view, do not modify).
