@@ -243,19 +243,165 @@ func categorical(name string, v []string) *Column {
 	return c
 }
 
-// ReadCSV reads a CSV file with a header row into a Frame. See ParseCSV.
+// ReadCSV reads a CSV file with a header row into a Frame. See ParseCSV for
+// the format. When no field after the header is quoted, line ends are record
+// ends, and the file is cut at line ends into pieces read by encoding/csv on
+// every core at once; otherwise it is read by one encoding/csv reader.
 func ReadCSV(path string) (*Frame, error) {
-	fh, err := os.Open(path)
+	data, err := os.ReadFile(path)
 	if err != nil {
 		return nil, fmt.Errorf("cannot open data file: %w", err)
 	}
-	defer fh.Close()
-	f, err := ParseCSV(bufio.NewReaderSize(fh, 1<<20))
+	f, err := parseBytes(data)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
 	f.file = path
 	return f, nil
+}
+
+func parseBytes(data []byte) (*Frame, error) {
+	data = bytes.TrimPrefix(data, []byte{0xEF, 0xBB, 0xBF})
+	cr := csv.NewReader(bytes.NewReader(data))
+	cr.FieldsPerRecord = -1
+	header, err := cr.Read()
+	if err == io.EOF {
+		return nil, errors.New("the file is empty: expected a header row naming the columns, then data rows")
+	}
+	if err != nil {
+		return nil, fmt.Errorf("cannot read the header row: %w", err)
+	}
+	body := data[cr.InputOffset():]
+	if len(body) < 1<<20 || bytes.IndexByte(body, '"') >= 0 {
+		return ParseCSV(bytes.NewReader(data))
+	}
+	names, err := checkHeader(header)
+	if err != nil {
+		return nil, err
+	}
+	p := len(names)
+	// Cut the body at line ends.
+	pieces := runtime.GOMAXPROCS(0) * 4
+	var chunks [][]byte
+	for len(body) > 0 {
+		size := len(body) / pieces
+		if size < 1<<16 {
+			size = len(body)
+		}
+		end := size
+		if end < len(body) {
+			k := bytes.IndexByte(body[end:], '\n')
+			if k < 0 {
+				end = len(body)
+			} else {
+				end += k + 1
+			}
+		}
+		chunks = append(chunks, body[:end])
+		body = body[end:]
+		pieces--
+		if pieces < 1 {
+			pieces = 1
+		}
+	}
+	type result struct {
+		parts []csvBatchOut
+		rows  int
+		err   error
+		errAt int // relative row of the error
+	}
+	results := make([]result, len(chunks))
+	var wg sync.WaitGroup
+	sem := make(chan struct{}, runtime.GOMAXPROCS(0))
+	for c := range chunks {
+		wg.Add(1)
+		go func(c int) {
+			defer wg.Done()
+			sem <- struct{}{}
+			defer func() { <-sem }()
+			r := &results[c]
+			cr := csv.NewReader(bytes.NewReader(chunks[c]))
+			cr.FieldsPerRecord = -1
+			batch := make([][]string, 0, csvBatch)
+			row := 1
+			flush := func() {
+				if len(batch) > 0 {
+					r.parts = append(r.parts, parseBatch(csvBatchIn{seq: len(r.parts), row0: row - len(batch), recs: batch}, p))
+					batch = make([][]string, 0, csvBatch)
+				}
+			}
+			for {
+				rec, err := cr.Read()
+				if err == io.EOF {
+					break
+				}
+				if err != nil {
+					r.err, r.errAt = err, row
+					return
+				}
+				if len(rec) != p {
+					if len(rec) == 1 && strings.TrimSpace(rec[0]) == "" {
+						continue
+					}
+					r.err, r.errAt = fmt.Errorf("has %d fields but the header has %d: check for a missing or extra comma (quote fields that contain commas)", len(rec), p), row
+					return
+				}
+				batch = append(batch, rec)
+				row++
+				if len(batch) == csvBatch {
+					flush()
+				}
+			}
+			flush()
+			r.rows = row - 1
+		}(c)
+	}
+	wg.Wait()
+	var parts []csvBatchOut
+	offset := 0
+	for _, r := range results {
+		if r.err != nil {
+			return nil, fmt.Errorf("row %d %v", offset+r.errAt, r.err)
+		}
+		for _, b := range r.parts {
+			b.seq = len(parts)
+			for j := range b.cols {
+				if b.cols[j].firstBad > 0 {
+					b.cols[j].firstBad += offset
+				}
+				if b.cols[j].nonf > 0 {
+					b.cols[j].nonf += offset
+				}
+			}
+			parts = append(parts, b)
+		}
+		offset += r.rows
+	}
+	if offset == 0 {
+		return nil, errors.New("the file has a header but no data rows")
+	}
+	f := &Frame{names: names, cols: make(map[string]*Column, p), rows: offset}
+	for j, name := range names {
+		f.cols[name] = assembleColumn(name, j, parts, offset)
+	}
+	return f, nil
+}
+
+func checkHeader(header []string) ([]string, error) {
+	names := make([]string, len(header))
+	seen := map[string]int{}
+	for i, h := range header {
+		h = strings.TrimSpace(h)
+		if h == "" {
+			return nil, fmt.Errorf("header: column %d has no name: give every column a name", i+1)
+		}
+		if j, dup := seen[h]; dup {
+			return nil, fmt.Errorf("header: duplicate column name %q (columns %d and %d): rename one of them", h, j+1, i+1)
+		}
+		seen[h] = i
+		names[i] = h
+	}
+	return names, nil
 }
 
 const csvBatch = 8192
@@ -308,18 +454,9 @@ func ParseCSV(r io.Reader) (*Frame, error) {
 	if err != nil {
 		return nil, fmt.Errorf("cannot read the header row: %w", err)
 	}
-	names := make([]string, len(header))
-	seen := map[string]int{}
-	for i, h := range header {
-		h = strings.TrimSpace(h)
-		if h == "" {
-			return nil, fmt.Errorf("header: column %d has no name: give every column a name", i+1)
-		}
-		if j, dup := seen[h]; dup {
-			return nil, fmt.Errorf("header: duplicate column name %q (columns %d and %d): rename one of them", h, j+1, i+1)
-		}
-		seen[h] = i
-		names[i] = h
+	names, err := checkHeader(header)
+	if err != nil {
+		return nil, err
 	}
 	p := len(names)
 

@@ -56,50 +56,91 @@ func parallelChunks(n int, fn func(k, lo, hi int)) {
 
 // crossProducts returns X'WX (p × p, full symmetric, row-major) and X'z for
 // the row-major n × p matrix X, weights w (nil = 1) and vector z (nil: X'z
-// not computed; z is not multiplied by w). The accumulation runs over row blocks in parallel with no
-// per-row allocation; only the upper triangle is accumulated, one AXPY per
-// row and column.
-func crossProducts(X []float64, n, p int, w, z []float64) (xtwx, xtwz []float64) {
+// not computed; z is not multiplied by w).
+func crossProducts(X []float64, n, p int, w, z []float64) (xtwx, xtz []float64) {
+	xtwx, xtz, _ = blockCross(X, n, p, func(i int, _ []float64) (float64, float64, float64) {
+		wi, zi := 1.0, 0.0
+		if w != nil {
+			wi = w[i]
+		}
+		if z != nil {
+			zi = z[i]
+		}
+		return wi, zi, 0
+	})
+	if z == nil {
+		xtz = nil
+	}
+	return xtwx, xtz
+}
+
+// subBlock is the number of rows transposed at a time in blockCross: p ×
+// subBlock float64s stay in the core's cache.
+const subBlock = 256
+
+// blockCross is the hot loop of every fit: over row blocks in parallel it
+// asks rowFn for each row's weight w_i, right-hand value z_i and a scalar to
+// sum (e.g. a deviance contribution), and accumulates
+//
+//	X'WX = Σ w_i x_i x_i'   and   X'z = Σ z_i x_i.
+//
+// Each block of rows is copied, scaled by √w_i and transposed into a small
+// per-worker buffer so that every entry of X'WX is a unit-stride dot product
+// (gonum's floats.Dot, SIMD); only the upper triangle is computed. No
+// allocation per row. Block boundaries depend on n only and partial sums are
+// reduced in block order, so results are identical on any number of cores.
+func blockCross(X []float64, n, p int, rowFn func(i int, row []float64) (w, z, extra float64)) (xtwx, xtz []float64, extra float64) {
 	_, count := chunking(n)
 	parts := make([][]float64, count)
 	parallelChunks(n, func(k, lo, hi int) {
-		acc := make([]float64, p*p+p)
-		for i := lo; i < hi; i++ {
-			row := X[i*p : (i+1)*p]
-			wi := 1.0
-			if w != nil {
-				wi = w[i]
-			}
-			if z != nil && z[i] != 0 {
-				floats.AddScaled(acc[p*p:], z[i], row)
-			}
-			if wi == 0 {
-				continue
+		acc := make([]float64, p*p+p+1)
+		bt := make([]float64, p*subBlock)
+		g := acc[p*p : p*p+p]
+		var ex float64
+		for s := lo; s < hi; s += subBlock {
+			e := min(s+subBlock, hi)
+			m := e - s
+			for i := s; i < e; i++ {
+				row := X[i*p : (i+1)*p]
+				w, z, x := rowFn(i, row)
+				ex += x
+				r := i - s
+				sw := 0.0
+				if w > 0 {
+					sw = math.Sqrt(w)
+				}
+				for j, v := range row {
+					bt[j*subBlock+r] = sw * v
+				}
+				if z != 0 {
+					for j, v := range row {
+						g[j] += z * v
+					}
+				}
 			}
 			for j := 0; j < p; j++ {
-				a := wi * row[j]
-				if a != 0 {
-					floats.AddScaled(acc[j*p+j:j*p+p], a, row[j:])
+				bj := bt[j*subBlock : j*subBlock+m]
+				for c := j; c < p; c++ {
+					acc[j*p+c] += floats.Dot(bj, bt[c*subBlock:c*subBlock+m])
 				}
 			}
 		}
+		acc[p*p+p] = ex
 		parts[k] = acc
 	})
 	xtwx = make([]float64, p*p)
-	xtwz = make([]float64, p)
+	xtz = make([]float64, p)
 	for _, acc := range parts {
 		floats.Add(xtwx, acc[:p*p])
-		floats.Add(xtwz, acc[p*p:])
+		floats.Add(xtz, acc[p*p:p*p+p])
+		extra += acc[p*p+p]
 	}
 	for j := 0; j < p; j++ {
-		for k := j + 1; k < p; k++ {
-			xtwx[k*p+j] = xtwx[j*p+k]
+		for c := j + 1; c < p; c++ {
+			xtwx[c*p+j] = xtwx[j*p+c]
 		}
 	}
-	if z == nil {
-		xtwz = nil
-	}
-	return xtwx, xtwz
+	return xtwx, xtz, extra
 }
 
 // checkRank reports collinear design columns. It runs a Cholesky

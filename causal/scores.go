@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 	"strings"
 )
@@ -261,8 +262,9 @@ func propensityFor(d *Design, o logitOptions) *Scores {
 		}
 		sc.Terms = append(sc.Terms, t)
 	}
-	sc.AUC = auc(sc.E, d.T)
-	sc.Calibration = calibration(sc.E, d.T, 10)
+	sorted := sortScores(sc.E, d.T)
+	sc.AUC = aucSorted(sorted)
+	sc.Calibration = calibrationSorted(sorted, 10)
 	return sc
 }
 
@@ -417,6 +419,27 @@ func findSeparation(d *Design) []Separation {
 		}
 		return "control"
 	}
+	// Per-term ranges by arm, in one pass over the rows.
+	ranges := make([][4]float64, d.P)
+	for j := range ranges {
+		ranges[j] = [4]float64{math.Inf(1), math.Inf(-1), math.Inf(1), math.Inf(-1)}
+	}
+	for k := 0; k < d.N; k++ {
+		row := d.X[k*d.P : (k+1)*d.P]
+		off := 2
+		if d.T[k] == 1 {
+			off = 0
+		}
+		for j, v := range row {
+			r := &ranges[j]
+			if v < r[off] {
+				r[off] = v
+			}
+			if v > r[off+1] {
+				r[off+1] = v
+			}
+		}
+	}
 	for ci, c := range d.Covariates {
 		if c.Kind == Categorical {
 			nl := len(c.Levels)
@@ -480,15 +503,7 @@ func findSeparation(d *Design) []Separation {
 			}
 			continue
 		}
-		lo1, hi1, lo0, hi0 := math.Inf(1), math.Inf(-1), math.Inf(1), math.Inf(-1)
-		for k := 0; k < d.N; k++ {
-			v := d.X[k*d.P+j]
-			if d.T[k] == 1 {
-				lo1, hi1 = math.Min(lo1, v), math.Max(hi1, v)
-			} else {
-				lo0, hi0 = math.Min(lo0, v), math.Max(hi0, v)
-			}
-		}
+		lo1, hi1, lo0, hi0 := ranges[j][0], ranges[j][1], ranges[j][2], ranges[j][3]
 		if hi1 < lo0 || hi0 < lo1 {
 			msg := fmt.Sprintf("%s separates the arms completely: treated range [%g, %g], control range [%g, %g] do not overlap (positivity violated)", c.Name, lo1, hi1, lo0, hi0)
 			out = append(out, Separation{Term: c.Name, Column: c.Name, Kind: "complete", Arm: arm(1) + "/" + arm(0), Units: d.N, Message: msg})
@@ -506,24 +521,55 @@ func termIndex(d *Design, name string) int {
 	return -1
 }
 
-// auc is the Mann–Whitney form of the c-statistic: (R1 − n1(n1+1)/2)/(n1 n0)
-// with R1 the sum of the treated units' mid-ranks (Hanley & McNeil 1982).
-func auc(e, t []float64) float64 {
-	n := len(e)
-	idx := make([]int, n)
-	for i := range idx {
-		idx[i] = i
+type scoreT struct{ e, t float64 }
+
+// sortScores pairs scores with treatment and sorts by score. Each arm's
+// scores are sorted on its own core (slices.Sort) and the two runs merged;
+// at equal scores treated units come first.
+func sortScores(e, t []float64) []scoreT {
+	var e1, e0 []float64
+	for i, v := range e {
+		if t[i] == 1 {
+			e1 = append(e1, v)
+		} else {
+			e0 = append(e0, v)
+		}
 	}
-	sort.Slice(idx, func(a, b int) bool { return e[idx[a]] < e[idx[b]] })
+	done := make(chan struct{})
+	go func() { slices.Sort(e1); close(done) }()
+	slices.Sort(e0)
+	<-done
+	p := make([]scoreT, 0, len(e))
+	i, j := 0, 0
+	for i < len(e1) || j < len(e0) {
+		if j == len(e0) || (i < len(e1) && e1[i] <= e0[j]) {
+			p = append(p, scoreT{e1[i], 1})
+			i++
+		} else {
+			p = append(p, scoreT{e0[j], 0})
+			j++
+		}
+	}
+	return p
+}
+
+// auc is the c-statistic of scores e for treatment t.
+func auc(e, t []float64) float64 { return aucSorted(sortScores(e, t)) }
+
+// aucSorted is the Mann–Whitney form of the c-statistic:
+// (R1 − n1(n1+1)/2)/(n1 n0) with R1 the sum of the treated units' mid-ranks
+// (Hanley & McNeil 1982).
+func aucSorted(p []scoreT) float64 {
+	n := len(p)
 	var r1, n1 float64
 	for i := 0; i < n; {
 		j := i
-		for j < n && e[idx[j]] == e[idx[i]] {
+		for j < n && p[j].e == p[i].e {
 			j++
 		}
 		mid := float64(i+j+1) / 2 // ranks i+1..j
 		for k := i; k < j; k++ {
-			if t[idx[k]] == 1 {
+			if p[k].t == 1 {
 				r1 += mid
 				n1++
 			}
@@ -534,15 +580,10 @@ func auc(e, t []float64) float64 {
 	return (r1 - n1*(n1+1)/2) / (n1 * n0)
 }
 
-// calibration groups units by score quantile (bins of equal count; ties kept
-// together) and compares the mean score with the share treated in each.
-func calibration(e, t []float64, bins int) []CalibrationBin {
-	n := len(e)
-	idx := make([]int, n)
-	for i := range idx {
-		idx[i] = i
-	}
-	sort.Slice(idx, func(a, b int) bool { return e[idx[a]] < e[idx[b]] })
+// calibrationSorted groups units by score quantile (bins of equal count;
+// ties kept together) and compares the mean score with the share treated.
+func calibrationSorted(p []scoreT, bins int) []CalibrationBin {
+	n := len(p)
 	var out []CalibrationBin
 	start := 0
 	for b := 1; b <= bins && start < n; b++ {
@@ -550,19 +591,19 @@ func calibration(e, t []float64, bins int) []CalibrationBin {
 		if b == bins {
 			end = n
 		}
-		for end < n && end > 0 && e[idx[end]] == e[idx[end-1]] {
+		for end < n && end > 0 && p[end].e == p[end-1].e {
 			end++
 		}
 		if end <= start {
 			continue
 		}
 		var se, st float64
-		for _, i := range idx[start:end] {
-			se += e[i]
-			st += t[i]
+		for _, u := range p[start:end] {
+			se += u.e
+			st += u.t
 		}
 		m := float64(end - start)
-		out = append(out, CalibrationBin{Lo: e[idx[start]], Hi: e[idx[end-1]], MeanScore: se / m, ShareTreated: st / m, N: end - start})
+		out = append(out, CalibrationBin{Lo: p[start].e, Hi: p[end-1].e, MeanScore: se / m, ShareTreated: st / m, N: end - start})
 		start = end
 	}
 	return out
