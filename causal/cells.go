@@ -7,6 +7,7 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+	"sync"
 )
 
 // CellOptions tune how a covariate subset is cut into cells.
@@ -105,19 +106,41 @@ func (s *Study) CellsWith(o CellOptions, columns ...string) *Cells {
 		return &Cells{err: errors.New("cells: name at least one covariate")}
 	}
 	o = o.withDefaults()
-	codes := make([][]int32, len(columns))
-	cuts := make([]Cut, len(columns))
-	for j, name := range columns {
-		col, err := s.column(name, "cells")
-		if err != nil {
-			return &Cells{err: err}
-		}
-		codes[j], cuts[j], err = discretize(col, d.Rows, o.Bins)
-		if err != nil {
-			return &Cells{err: err}
-		}
+	codes, cuts, err := discretizeAll(s, d, columns, o.Bins, "cells")
+	if err != nil {
+		return &Cells{err: err}
 	}
 	return buildCells(d, columns, codes, cuts, o)
+}
+
+// discretizeAll codes the named columns, one goroutine per column.
+func discretizeAll(s *Study, d *Design, columns []string, bins int, role string) ([][]int32, []Cut, error) {
+	codes := make([][]int32, len(columns))
+	cuts := make([]Cut, len(columns))
+	errs := make([]error, len(columns))
+	cols := make([]*Column, len(columns))
+	for j, name := range columns {
+		col, err := s.column(name, role)
+		if err != nil {
+			return nil, nil, err
+		}
+		cols[j] = col
+	}
+	var wg sync.WaitGroup
+	for j := range columns {
+		wg.Add(1)
+		go func(j int) {
+			defer wg.Done()
+			codes[j], cuts[j], errs[j] = discretize(cols[j], d.Rows, bins)
+		}(j)
+	}
+	wg.Wait()
+	for _, err := range errs {
+		if err != nil {
+			return nil, nil, err
+		}
+	}
+	return codes, cuts, nil
 }
 
 // discretize codes a column for the given rows: categorical by level,
@@ -153,12 +176,19 @@ func discretize(c *Column, rows []int, bins int) ([]int32, Cut, error) {
 		return codes, cut, nil
 	}
 	vals := make([]float64, len(rows))
+	lo, hi := math.Inf(1), math.Inf(-1)
 	for r, i := range rows {
 		v := c.Num[i]
 		if math.IsNaN(v) {
 			return nil, cut, fmt.Errorf("cells: column %q has missing values in rows the study uses (row %d): fill them in or drop those rows", c.Name, i+1)
 		}
 		vals[r] = v
+		if v < lo {
+			lo = v
+		}
+		if v > hi {
+			hi = v
+		}
 	}
 	// Few distinct values: use them as levels.
 	distinct := map[float64]struct{}{}
@@ -178,7 +208,11 @@ func discretize(c *Column, rows []int, bins int) ([]int32, Cut, error) {
 			cut.Labels = append(cut.Labels, strconv.FormatFloat(v, 'g', -1, 64))
 		}
 		for r, v := range vals {
-			codes[r] = int32(sort.SearchFloat64s(levels, v))
+			k := 0
+			for k < len(levels)-1 && levels[k] < v {
+				k++
+			}
+			codes[r] = int32(k)
 		}
 		cut.Kind = "levels"
 		return codes, cut, nil
@@ -187,12 +221,7 @@ func discretize(c *Column, rows []int, bins int) ([]int32, Cut, error) {
 	for k := range ps {
 		ps[k] = float64(k+1) / float64(bins)
 	}
-	buf := append([]float64(nil), vals...)
-	qs := empiricalQuantiles(buf, ps)
-	lo, hi := math.Inf(1), math.Inf(-1)
-	for _, v := range vals {
-		lo, hi = math.Min(lo, v), math.Max(hi, v)
-	}
+	qs := quantilesOf(vals, ps)
 	var breaks []float64
 	for _, q := range qs {
 		if q < hi && (len(breaks) == 0 || q > breaks[len(breaks)-1]) {
@@ -213,9 +242,19 @@ func discretize(c *Column, rows []int, bins int) ([]int32, Cut, error) {
 		cut.Labels = append(cut.Labels, fmt.Sprintf("%s%s, %s]", open, fmtNum(prev), fmtNum(up)))
 		prev = up
 	}
-	for r, v := range vals {
-		// bin = number of breaks strictly below v
-		codes[r] = int32(sort.SearchFloat64s(breaks, v))
+	// bin = number of breaks strictly below v
+	if len(breaks) <= 16 {
+		for r, v := range vals {
+			k := 0
+			for k < len(breaks) && breaks[k] < v {
+				k++
+			}
+			codes[r] = int32(k)
+		}
+	} else {
+		for r, v := range vals {
+			codes[r] = int32(sort.SearchFloat64s(breaks, v))
+		}
 	}
 	return codes, cut, nil
 }
@@ -231,12 +270,12 @@ func buildCells(d *Design, columns []string, codes [][]int32, cuts []Cut, o Cell
 		total *= int64(len(cuts[j].Labels))
 	}
 	key := make([]int64, n)
-	for i := 0; i < n; i++ {
-		var k int64
-		for j := range columns {
-			k += int64(codes[j][i]) * strides[j]
+	for j := range columns {
+		st := strides[j]
+		cj := codes[j]
+		for i, v := range cj {
+			key[i] += int64(v) * st
 		}
-		key[i] = k
 	}
 	c := &Cells{Columns: columns, Cuts: cuts, Options: o, N: n, cellOf: make([]int32, n)}
 	if total <= 1<<22 {
@@ -364,6 +403,67 @@ func rank(c Cell) int {
 		return 1
 	}
 	return 0
+}
+
+// quantilesOf returns the empirical quantiles (see empiricalQuantiles) of x
+// without reordering it. For large x it brackets each quantile using a sorted
+// systematic sample (every ⌈n/m⌉-th value), collects the values inside each
+// bracket in one pass and selects the exact order statistic among them; when
+// a bracket misses (possible only for adversarial orderings) it falls back to
+// selection on a full copy. The answer is exact either way.
+func quantilesOf(x []float64, ps []float64) []float64 {
+	n := len(x)
+	if n <= 1<<18 {
+		return empiricalQuantiles(append([]float64(nil), x...), ps)
+	}
+	step := n / (1 << 16)
+	sample := make([]float64, 0, n/step+1)
+	for i := 0; i < n; i += step {
+		sample = append(sample, x[i])
+	}
+	sort.Float64s(sample)
+	m := len(sample)
+	delta := int(6*math.Sqrt(float64(m))) + 1
+	type bracket struct {
+		lo, hi float64
+		k      int // target 0-based order statistic
+		below  int
+		in     []float64
+	}
+	br := make([]bracket, len(ps))
+	for q, p := range ps {
+		k := int(math.Ceil(p*float64(n))) - 1
+		k = max(0, min(n-1, k))
+		ks := int(float64(k) / float64(n) * float64(m))
+		br[q] = bracket{lo: sample[max(0, ks-delta)], hi: sample[min(m-1, ks+delta)], k: k}
+		if ks-delta <= 0 {
+			br[q].lo = math.Inf(-1)
+		}
+		if ks+delta >= m-1 {
+			br[q].hi = math.Inf(1)
+		}
+	}
+	for _, v := range x {
+		for q := range br {
+			b := &br[q]
+			if v < b.lo {
+				b.below++
+			} else if v <= b.hi {
+				b.in = append(b.in, v)
+			}
+		}
+	}
+	out := make([]float64, len(ps))
+	for q := range br {
+		b := &br[q]
+		r := b.k - b.below
+		if r < 0 || r >= len(b.in) {
+			return empiricalQuantiles(append([]float64(nil), x...), ps)
+		}
+		sort.Float64s(b.in)
+		out[q] = b.in[r]
+	}
+	return out
 }
 
 // empiricalQuantiles returns, for each p, the value x_(k) with

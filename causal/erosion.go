@@ -66,19 +66,13 @@ func (s *Study) ErosionWith(o CellOptions, greedy bool, columns ...string) *Eros
 		return &Erosion{err: errors.New("erosion: no covariates: call .Adjust(...) or name columns")}
 	}
 	o = o.withDefaults()
-	codes := make([][]int32, len(columns))
+	codes, cuts, err := discretizeAll(s, d, columns, o.Bins, "erosion")
+	if err != nil {
+		return &Erosion{err: err}
+	}
 	sizes := make([]int, len(columns))
-	for j, name := range columns {
-		col, err := s.column(name, "erosion")
-		if err != nil {
-			return &Erosion{err: err}
-		}
-		var cut Cut
-		codes[j], cut, err = discretize(col, d.Rows, o.Bins)
-		if err != nil {
-			return &Erosion{err: err}
-		}
-		sizes[j] = len(cut.Labels)
+	for j := range cuts {
+		sizes[j] = len(cuts[j].Labels)
 	}
 	e := &Erosion{Greedy: greedy, Options: o}
 	// key holds the cell of each row for the covariates chosen so far,

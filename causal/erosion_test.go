@@ -225,3 +225,32 @@ func TestCellsCounts(t *testing.T) {
 		t.Errorf("verdict %s with an empty-arm cell", v.Status)
 	}
 }
+
+// Reference: gonum's stat.Quantile (stat.Empirical) on sorted data, for the
+// bracketing path used on large inputs (n > 2^18), with ties and sorted input.
+func TestQuantilesOfLarge(t *testing.T) {
+	r := rand.New(rand.NewPCG(9, 9))
+	n := 600000
+	for _, kind := range []string{"normal", "ties", "sorted"} {
+		x := make([]float64, n)
+		for i := range x {
+			switch kind {
+			case "normal":
+				x[i] = r.NormFloat64()
+			case "ties":
+				x[i] = float64(r.IntN(7))
+			case "sorted":
+				x[i] = float64(i)
+			}
+		}
+		ps := []float64{0.2, 0.4, 0.6, 0.8}
+		got := quantilesOf(x, ps)
+		sorted := append([]float64(nil), x...)
+		sort.Float64s(sorted)
+		for k, p := range ps {
+			if want := stat.Quantile(p, stat.Empirical, sorted, nil); got[k] != want {
+				t.Errorf("%s p=%g: %g, gonum %g", kind, p, got[k], want)
+			}
+		}
+	}
+}
