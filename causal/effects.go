@@ -294,7 +294,7 @@ func (sc *Scores) Effect(est Estimator, target Estimand, cells ...*Cells) *Effec
 		eff.flag("unsupported_estimand", fmt.Sprintf("the data do not support the %s: %s", target, why))
 	}
 	eff.outcomeBinary, eff.sdPooled = outcomeSummary(d)
-	if eff.sdPooled == 0 && constantOutcome(d.Y) {
+	if constantOutcome(d.Y) {
 		eff.flag("constant_outcome", fmt.Sprintf("the outcome %q takes the single value %g in every row used: every effect is 0 and has no sampling variability; check the outcome column", d.roles.Outcome, d.Y[0]))
 	}
 	out, err := evaluate(sc, est, target, nil, nil, nil, true)
@@ -317,29 +317,36 @@ func (sc *Scores) Effect(est Estimator, target Estimand, cells ...*Cells) *Effec
 	return eff
 }
 
-// evaluate computes the estimator on the scores' design. e, models and fw
-// may override the full-sample scores, outcome models and unit weights (the
+// outcomes are the two arm models with their predictions f1(x_i), f0(x_i)
+// (computed where fw > 0).
+type outcomes struct {
+	m1, m0 *olsFit
+	f1, f0 []float64
+}
+
+// evaluate computes the estimator on the scores' design. e, oc and fw may
+// override the full-sample scores, outcome models and unit weights (the
 // bootstrap passes refitted ones and multinomial counts); withSE asks for the
 // covariance of the arm means (only without fw).
-func evaluate(sc *Scores, est Estimator, target Estimand, e []float64, models *[2]*olsFit, fw []float64, withSE bool) (estOut, error) {
+func evaluate(sc *Scores, est Estimator, target Estimand, e []float64, oc *outcomes, fw []float64, withSE bool) (estOut, error) {
 	d := sc.Design
 	if e == nil {
 		e = sc.E
 	}
-	if est.usesScores() && est != OverlapWeighted {
+	if est.usesScores() && est != OverlapWeighted && fw == nil {
+		// (A bootstrap replicate checks that its estimate is finite instead.)
 		if err := checkFiniteWeights(d, e, target, est); err != nil {
 			return estOut{}, err
 		}
 	}
-	var m1, m0 *olsFit
-	if est.usesOutcomeModels() {
-		if models != nil {
-			m1, m0 = models[0], models[1]
-		} else {
-			var err error
-			if m1, m0, err = outcomeModels(d, fw, withSE); err != nil {
-				return estOut{}, fmt.Errorf("%s: %w", est, err)
-			}
+	if est.usesOutcomeModels() && oc == nil {
+		m1, m0, err := outcomeModels(d, fw, withSE)
+		if err != nil {
+			return estOut{}, fmt.Errorf("%s: %w", est, err)
+		}
+		oc = &outcomes{m1: m1, m0: m0}
+		if est == AIPW {
+			oc.f1, oc.f0 = predictInto(nil, d, m1, fw), predictInto(nil, d, m0, fw)
 		}
 	}
 	nan := math.NaN()
@@ -347,9 +354,9 @@ func evaluate(sc *Scores, est Estimator, target Estimand, e []float64, models *[
 	case DifferenceInMeans:
 		return diffMeans(d.T, d.Y, fw, withSE), nil
 	case RegressionAdjustment:
-		return regressionAdjustment(d, m1, m0, target, fw, nil, withSE), nil
+		return regressionAdjustment(d, oc.m1, oc.m0, target, fw, nil, withSE), nil
 	case AIPW:
-		f1, f0 := predictAll(d, m1), predictAll(d, m0)
+		f1, f0 := oc.f1, oc.f0
 		if target == ATC {
 			t, ef := flipped(d.T, e)
 			o := aipwATT(t, d.Y, ef, f0, f1, fw, withSE)
@@ -425,9 +432,16 @@ func checkFiniteWeights(d *Design, e []float64, target Estimand, est Estimator) 
 	return infiniteWeightsError(d, e, bad, fmt.Sprintf("%s for the %s", est, target))
 }
 
-func predictAll(d *Design, m *olsFit) []float64 {
-	out := make([]float64, d.N)
+// predictInto writes m's predictions for the rows with fw > 0 (all rows when
+// fw is nil) into out (allocated when nil).
+func predictInto(out []float64, d *Design, m *olsFit, fw []float64) []float64 {
+	if out == nil {
+		out = make([]float64, d.N)
+	}
 	for i := range out {
+		if fw != nil && fw[i] == 0 {
+			continue
+		}
 		out[i] = m.predict(d.X[i*d.P : (i+1)*d.P])
 	}
 	return out
@@ -837,6 +851,15 @@ func (es *Estimates) MarshalJSON() ([]byte, error) {
 	return json.Marshal(out)
 }
 
+func (es *Estimates) firstItemFlags() []Flag {
+	for _, e := range es.Items {
+		if e.err == nil {
+			return e.Flags
+		}
+	}
+	return nil
+}
+
 // String is the terminal table.
 func (es *Estimates) String() string {
 	if es.err != nil {
@@ -867,10 +890,9 @@ func (es *Estimates) String() string {
 	if len(flagged) > 0 {
 		fmt.Fprintf(&b, "  The data do not support the %s: %s\n", es.Estimand, flagged[0])
 	}
-	for _, e := range es.Items {
-		if e.HasFlag("constant_outcome") {
-			fmt.Fprintf(&b, "  %s\n", e.Flags[len(e.Flags)-1].Message)
-			break
+	for _, f := range es.firstItemFlags() {
+		if f.Code == "constant_outcome" {
+			fmt.Fprintf(&b, "  %s\n", f.Message)
 		}
 	}
 	fmt.Fprintf(&b, "  These estimates assume no unmeasured confounding, which the data cannot verify; they depend on the covariates measured.\n")

@@ -86,8 +86,8 @@ const subBlock = 256
 //
 // Each block of rows is copied, scaled by √w_i and transposed into a small
 // per-worker buffer so that every entry of X'WX is a unit-stride dot product
-// (gonum's floats.Dot, SIMD); only the upper triangle is computed. No
-// allocation per row. Block boundaries depend on n only and partial sums are
+// (gonum's floats.Dot, SIMD); only the upper triangle is computed; rows with
+// w_i ≤ 0 are left out of X'WX. No allocation per row. Block boundaries depend on n only and partial sums are
 // reduced in block order, so results are identical on any number of cores.
 func blockCross(X []float64, n, p int, rowFn func(i int, row []float64) (w, z, extra float64)) (xtwx, xtz []float64, extra float64) {
 	_, count := chunking(n)
@@ -97,34 +97,39 @@ func blockCross(X []float64, n, p int, rowFn func(i int, row []float64) (w, z, e
 		bt := make([]float64, p*subBlock)
 		g := acc[p*p : p*p+p]
 		var ex float64
-		for s := lo; s < hi; s += subBlock {
-			e := min(s+subBlock, hi)
-			m := e - s
-			for i := s; i < e; i++ {
-				row := X[i*p : (i+1)*p]
-				w, z, x := rowFn(i, row)
-				ex += x
-				r := i - s
-				sw := 0.0
-				if w > 0 {
-					sw = math.Sqrt(w)
-				}
-				for j, v := range row {
-					bt[j*subBlock+r] = sw * v
-				}
-				if z != 0 {
-					for j, v := range row {
-						g[j] += z * v
-					}
-				}
-			}
+		// Rows of weight 0 (for example units outside a bootstrap
+		// resample) are skipped, the others packed m at a time.
+		m := 0
+		flush := func() {
 			for j := 0; j < p; j++ {
 				bj := bt[j*subBlock : j*subBlock+m]
 				for c := j; c < p; c++ {
 					acc[j*p+c] += floats.Dot(bj, bt[c*subBlock:c*subBlock+m])
 				}
 			}
+			m = 0
 		}
+		for i := lo; i < hi; i++ {
+			row := X[i*p : (i+1)*p]
+			w, z, x := rowFn(i, row)
+			ex += x
+			if z != 0 {
+				for j, v := range row {
+					g[j] += z * v
+				}
+			}
+			if !(w > 0) {
+				continue
+			}
+			sw := math.Sqrt(w)
+			for j, v := range row {
+				bt[j*subBlock+m] = sw * v
+			}
+			if m++; m == subBlock {
+				flush()
+			}
+		}
+		flush()
 		acc[p*p+p] = ex
 		parts[k] = acc
 	})

@@ -25,6 +25,16 @@ type logitOptions struct {
 	ridge   float64
 	maxIter int
 	tol     float64
+	// stepTol: converged when the Newton step is below stepTol in every
+	// scaled coordinate (default 1e-7). After a step of size s the error is
+	// of order s² (quadratic convergence); the bootstrap uses 1e-4.
+	stepTol float64
+	// lean is for refits warm-started next to the maximum (the bootstrap):
+	// no deviance (so no step-halving: full Newton steps, and a fit that
+	// does not settle within maxIter is reported not converged), no fitted
+	// probabilities and no covariance (fit.e, fit.cov nil, fit.deviance
+	// NaN); the caller computes the scores it needs.
+	lean bool
 }
 
 func sigmoid(x float64) float64 {
@@ -65,24 +75,26 @@ func fitLogistic(X []float64, n, p int, t, fw, start []float64, o logitOptions) 
 	if o.tol <= 0 {
 		o.tol = 1e-13
 	}
+	if o.stepTol <= 0 {
+		o.stepTol = 1e-7
+	}
 	scale := make([]float64, p)
 	{
-		ones := make([]float64, n)
 		sq := make([]float64, p)
+		var sw float64
 		for i := 0; i < n; i++ {
 			w := 1.0
 			if fw != nil {
 				w = fw[i]
+				if w == 0 {
+					continue
+				}
 			}
-			ones[i] = w
+			sw += w
 			row := X[i*p : (i+1)*p]
 			for j, v := range row {
 				sq[j] += w * v * v
 			}
-		}
-		var sw float64
-		for _, w := range ones {
-			sw += w
 		}
 		for j := range scale {
 			scale[j] = math.Sqrt(sq[j] / sw)
@@ -127,6 +139,12 @@ func fitLogistic(X []float64, n, p int, t, fw, start []float64, o logitOptions) 
 	// b, the information X'WX + λS² and the score X'fw(T − μ) − λS²b.
 	evaluate := func(b []float64) (dev float64, info, grad []float64) {
 		info, grad, dev = blockCross(X, n, p, func(i int, row []float64) (float64, float64, float64) {
+			f := 1.0
+			if fw != nil {
+				if f = fw[i]; f == 0 {
+					return 0, 0, 0 // a unit with frequency weight 0 contributes nothing
+				}
+			}
 			var e float64
 			for j, v := range row {
 				e += v * b[j]
@@ -134,19 +152,21 @@ func fitLogistic(X []float64, n, p int, t, fw, start []float64, o logitOptions) 
 			// One exponential serves μ = σ(e) and log(1 + exp(e)).
 			ex := math.Exp(-math.Abs(e))
 			mu := 1 / (1 + ex)
-			sp := math.Log1p(ex)
+			var sp float64
+			if !o.lean {
+				sp = math.Log1p(ex)
+			}
 			if e < 0 {
 				mu = ex / (1 + ex)
 			} else {
 				sp += e
 			}
-			f := 1.0
-			if fw != nil {
-				f = fw[i]
-			}
 			return f * mu * (1 - mu), f * (t[i] - mu), f * (sp - t[i]*e)
 		})
 		dev = 2*dev + penalty(b)
+		if o.lean {
+			dev = 0 // not computed: every full step is accepted
+		}
 		for j := 1; j < p; j++ {
 			info[j*p+j] += o.ridge * scale[j] * scale[j]
 			grad[j] -= o.ridge * scale[j] * scale[j] * b[j]
@@ -187,9 +207,9 @@ func fitLogistic(X []float64, n, p int, t, fw, start []float64, o logitOptions) 
 		for j := 0; j < p; j++ {
 			maxStep = math.Max(maxStep, math.Abs(st.AtVec(j)))
 		}
-		if maxStep < 1e-7 && fit.iterations > 1 {
-			// Newton's step is below 1e-7 in every scaled coordinate: beta
-			// is within ~1e-14 of the maximum (quadratic convergence); info is the
+		if maxStep < o.stepTol && fit.iterations > 1 {
+			// Newton's step is below stepTol (1e-7) in every scaled coordinate: beta
+			// is within ~stepTol² of the maximum (quadratic convergence); info is the
 			// information there; the step is applied without another pass.
 			for j := range beta {
 				beta[j] += st.AtVec(j) / scale[j]
@@ -217,6 +237,16 @@ func fitLogistic(X []float64, n, p int, t, fw, start []float64, o logitOptions) 
 			fit.converged = true
 			break
 		}
+	}
+	if o.lean {
+		fit.beta = beta
+		fit.deviance = math.NaN()
+		for _, b := range beta {
+			if math.IsNaN(b) || math.IsInf(b, 0) {
+				return nil, fmt.Errorf("the propensity fit failed numerically after %d iterations", fit.iterations)
+			}
+		}
+		return fit, nil
 	}
 	// Covariance: inverse information at the final beta (info is from the
 	// last evaluation, which was at beta).

@@ -44,7 +44,8 @@ func (o VerdictOptions) withDefaults() VerdictOptions {
 
 // Verdict summarises the positivity diagnostics: a status (adequate,
 // limited, violated), the reasons, the estimands the data still support, a
-// recommended remedy, and what trimming at the Extreme threshold would drop.
+// recommended remedy with its cost (and alternatives), and what trimming at
+// the Extreme threshold would drop.
 type Verdict struct {
 	Status    string   `json:"status"`
 	Reasons   []string `json:"reasons"`
@@ -53,11 +54,14 @@ type Verdict struct {
 	// Notes are findings too small to change the status.
 	Notes []string `json:"notes"`
 	// Trimming to [Extreme, 1 − Extreme] would drop these units.
-	TrimThreshold float64        `json:"trim_threshold"`
-	TrimTreated   int            `json:"trim_drops_treated"`
-	TrimControl   int            `json:"trim_drops_control"`
-	Options       VerdictOptions `json:"-"`
-	err           error
+	TrimThreshold float64 `json:"trim_threshold"`
+	TrimTreated   int     `json:"trim_drops_treated"`
+	TrimControl   int     `json:"trim_drops_control"`
+	// Remedies: the recommended remedy first (its Text is Remedy), then
+	// the alternatives, each with its cost.
+	Remedies []Remedy       `json:"remedies"`
+	Options  VerdictOptions `json:"-"`
+	err      error
 }
 
 // Err returns why no verdict could be reached, or nil.
@@ -68,68 +72,102 @@ func (v *Verdict) Err() error {
 	return v.err
 }
 
-// Verdict judges positivity from the scores and any positivity tables given.
-// Rules (each threshold in VerdictOptions, with its source):
-//   - violated: separation (treatment deterministic for a covariate level or
-//     range), a cell with an empty arm that chance does not explain
-//     (Cell.Chance < 0.05), or no common-support band at all;
-//   - limited: a share of units outside the band above MaxShareOutside, a
-//     share of extreme scores above MaxShareExtreme, or sparse cells (thin,
-//     or lacking an arm by what may be chance) holding more than
-//     MaxShareOutside of the units (fewer: a note);
-//   - adequate otherwise.
-//
-// Supported estimands: ATE only without violations; ATT when every treated
-// unit has comparable controls (no treated-only cell or level, no treated
-// score above the controls' maximum); ATC symmetrically; ATO (overlap
-// weights) always, since it targets the population with overlap (Li, Morgan
-// & Zaslavsky 2018).
-func (sc *Scores) Verdict(o VerdictOptions, cells ...*Cells) *Verdict {
-	if err := sc.Err(); err != nil {
-		return &Verdict{err: err}
-	}
-	for _, c := range cells {
-		if err := c.Err(); err != nil {
-			return &Verdict{err: err}
+// positivity collects the findings behind a verdict: what is violated or
+// limited, and which arms lack comparable units of the other arm somewhere.
+type positivity struct {
+	violated, limited        bool
+	treatedOnly, controlOnly bool // a region holds treated (control) units without the other arm
+	noOverlap                bool // the arms' scores do not overlap at all
+	reasons, notes           []string
+	treatedWhy, controlWhy   []string // why the ATT (ATC) is withdrawn
+	violationWhy             []string // violations (the ATE is withdrawn)
+	// controlsAlone and treatedAlone mark, per design row, the units in a
+	// region without the other arm (scores pinned at 0 or 1 by separation,
+	// outside the common-support band, or in a cell lacking the other arm
+	// that chance does not explain).
+	controlsAlone, treatedAlone []bool
+	sup                         *Support
+}
+
+func (sc *Scores) positivity(o VerdictOptions, cells []*Cells) *positivity {
+	o = o.withDefaults()
+	pf := &positivity{reasons: []string{}, notes: []string{}}
+	sup := sc.Support()
+	pf.sup = sup
+	d := sc.Design
+	pf.controlsAlone = make([]bool, d.N)
+	pf.treatedAlone = make([]bool, d.N)
+	for i, e := range sc.E {
+		if d.T[i] == 0 && (e == 0 || sup.Outside[i]) {
+			pf.controlsAlone[i] = true
+		}
+		if d.T[i] == 1 && (e == 1 || sup.Outside[i]) {
+			pf.treatedAlone[i] = true
 		}
 	}
-	o = o.withDefaults()
-	v := &Verdict{Options: o, TrimThreshold: o.Extreme, Reasons: []string{}, Notes: []string{}}
-	sup := sc.Support()
-	d := sc.Design
-	violated, limited := false, false
-	treatedOnly, controlOnly := false, false // regions where an arm is missing
 	for _, f := range sc.Separation {
-		violated = true
-		v.Reasons = append(v.Reasons, "separation: "+f.Message)
+		pf.violated = true
+		msg := "separation: " + f.Message
+		pf.reasons = append(pf.reasons, msg)
+		pf.violationWhy = append(pf.violationWhy, msg)
 		switch f.Arm {
 		case "treated":
-			treatedOnly = true
+			pf.treatedOnly = true
+			pf.treatedWhy = append(pf.treatedWhy, msg)
 		case "control":
-			controlOnly = true
+			pf.controlOnly = true
+			pf.controlWhy = append(pf.controlWhy, msg)
 		default:
-			treatedOnly, controlOnly = true, true
+			pf.treatedOnly, pf.controlOnly = true, true
+			pf.treatedWhy = append(pf.treatedWhy, msg)
+			pf.controlWhy = append(pf.controlWhy, msg)
 		}
 	}
 	if sup.Band.Lo > sup.Band.Hi {
-		violated = true
-		treatedOnly, controlOnly = true, true
-		v.Reasons = append(v.Reasons, "no common support: the score ranges of the arms do not overlap")
+		msg := "no common support: the score ranges of the arms do not overlap"
+		pf.violated, pf.noOverlap = true, true
+		pf.treatedOnly, pf.controlOnly = true, true
+		pf.reasons = append(pf.reasons, msg)
+		pf.violationWhy = append(pf.violationWhy, msg)
+		pf.treatedWhy = append(pf.treatedWhy, msg)
+		pf.controlWhy = append(pf.controlWhy, msg)
 	}
 	for _, c := range cells {
 		if c.Structural > 0 {
-			violated = true
+			pf.violated = true
+			var t1, c0 int
 			for _, r := range c.Rows {
 				if r.Empty && r.Chance < 0.05 {
 					if r.Treated > 0 {
-						treatedOnly = true
+						pf.treatedOnly = true
+						t1 += r.Treated
 					} else {
-						controlOnly = true
+						pf.controlOnly = true
+						c0 += r.Control
 					}
 				}
 			}
-			v.Reasons = append(v.Reasons, fmt.Sprintf("positivity cells (%s): %d of %d cells have an empty arm that chance does not explain, holding %d units (%.1f%%); %d cells with an empty arm in all: %d treated without controls, %d controls without treated units",
-				strings.Join(c.Columns, " × "), c.Structural, len(c.Rows), c.UnitsStructural, 100*float64(c.UnitsStructural)/float64(c.N), c.Violating, c.TreatedViolating, c.ControlViolating))
+			for i := 0; i < d.N && i < len(c.cellOf); i++ {
+				r := c.Rows[c.cellOf[i]]
+				if r.Empty && r.Chance < 0.05 {
+					if d.T[i] == 1 {
+						pf.treatedAlone[i] = true
+					} else {
+						pf.controlsAlone[i] = true
+					}
+				}
+			}
+			cols := strings.Join(c.Columns, " × ")
+			msg := fmt.Sprintf("positivity cells (%s): %d of %d cells have an empty arm that chance does not explain, holding %d units (%.1f%%); %d cells with an empty arm in all: %d treated without controls, %d controls without treated units",
+				cols, c.Structural, len(c.Rows), c.UnitsStructural, 100*float64(c.UnitsStructural)/float64(c.N), c.Violating, c.TreatedViolating, c.ControlViolating)
+			pf.reasons = append(pf.reasons, msg)
+			pf.violationWhy = append(pf.violationWhy, msg)
+			if t1 > 0 {
+				pf.treatedWhy = append(pf.treatedWhy, fmt.Sprintf("positivity cells (%s): %d treated units are in cells without controls", cols, t1))
+			}
+			if c0 > 0 {
+				pf.controlWhy = append(pf.controlWhy, fmt.Sprintf("positivity cells (%s): %d controls are in cells without treated units", cols, c0))
+			}
 		}
 		// Thin cells and small cells lacking an arm by what may be chance:
 		// limited when they hold more than MaxShareOutside of the units,
@@ -146,35 +184,304 @@ func (sc *Scores) Verdict(o VerdictOptions, cells ...*Cells) *Verdict {
 			msg := fmt.Sprintf("positivity cells (%s): %d sparse cells (an arm with fewer than %d units, or missing in a cell small enough for chance) hold %d units (%.1f%%)",
 				strings.Join(c.Columns, " × "), sparseCells, c.Options.Thin, sparse, 100*share)
 			if share > o.MaxShareOutside {
-				limited = true
-				v.Reasons = append(v.Reasons, msg)
+				pf.limited = true
+				pf.reasons = append(pf.reasons, msg)
 			} else {
-				v.Notes = append(v.Notes, msg)
+				pf.notes = append(pf.notes, msg)
 			}
 		}
 	}
 	if share := sup.ShareOutside(); share > o.MaxShareOutside {
-		limited = true
-		v.Reasons = append(v.Reasons, fmt.Sprintf("%.1f%% of units lie outside the common-support band [%.3f, %.3f] (threshold %.0f%%)", 100*share, sup.Band.Lo, sup.Band.Hi, 100*o.MaxShareOutside))
+		pf.limited = true
+		pf.reasons = append(pf.reasons, fmt.Sprintf("%.1f%% of units lie outside the common-support band [%.3f, %.3f] (threshold %.0f%%)", 100*share, sup.Band.Lo, sup.Band.Hi, 100*o.MaxShareOutside))
 	}
 	// Treated units scored above every control (or controls below every
 	// treated unit) have no comparable units in the other arm; a handful is
 	// expected by chance at the tails, so only a share above MaxShareOutside
 	// of the arm withdraws the ATT (or ATC).
-	if sup.TreatedRange.Hi > sup.ControlRange.Hi || sup.TreatedRange.Lo < sup.ControlRange.Lo {
-		if float64(sup.OutsideTreated)/float64(sup.Treated) > o.MaxShareOutside {
-			treatedOnly = true
+	if !pf.noOverlap && (sup.TreatedRange.Hi > sup.ControlRange.Hi || sup.TreatedRange.Lo < sup.ControlRange.Lo) {
+		if share := float64(sup.OutsideTreated) / float64(sup.Treated); share > o.MaxShareOutside {
+			pf.treatedOnly, pf.limited = true, true
+			msg := fmt.Sprintf("%.1f%% of the treated units (%d) have scores outside the controls' range [%.3f, %.3f]: no comparable controls (threshold %.0f%% of the arm)",
+				100*share, sup.OutsideTreated, sup.ControlRange.Lo, sup.ControlRange.Hi, 100*o.MaxShareOutside)
+			pf.treatedWhy = append(pf.treatedWhy, msg)
+			if !pf.violated {
+				pf.reasons = append(pf.reasons, msg)
+			}
 		}
 	}
-	if sup.ControlRange.Lo < sup.TreatedRange.Lo || sup.ControlRange.Hi > sup.TreatedRange.Hi {
-		if float64(sup.OutsideControl)/float64(sup.Control) > o.MaxShareOutside {
-			controlOnly = true
+	if !pf.noOverlap && (sup.ControlRange.Lo < sup.TreatedRange.Lo || sup.ControlRange.Hi > sup.TreatedRange.Hi) {
+		if share := float64(sup.OutsideControl) / float64(sup.Control); share > o.MaxShareOutside {
+			pf.controlOnly, pf.limited = true, true
+			msg := fmt.Sprintf("%.1f%% of the controls (%d) have scores outside the treated units' range [%.3f, %.3f]: no comparable treated units (threshold %.0f%% of the arm)",
+				100*share, sup.OutsideControl, sup.TreatedRange.Lo, sup.TreatedRange.Hi, 100*o.MaxShareOutside)
+			pf.controlWhy = append(pf.controlWhy, msg)
+			if !pf.violated {
+				pf.reasons = append(pf.reasons, msg)
+			}
 		}
 	}
 	var ext int
-	for i, e := range sc.E {
+	for _, e := range sc.E {
 		if e < o.Extreme || e > 1-o.Extreme {
 			ext++
+		}
+	}
+	if share := float64(ext) / float64(d.N); share > o.MaxShareExtreme {
+		pf.limited = true
+		pf.reasons = append(pf.reasons, fmt.Sprintf("%.1f%% of units have scores below %.2f or above %.2f (threshold %.0f%%)", 100*share, o.Extreme, 1-o.Extreme, 100*o.MaxShareExtreme))
+	}
+	return pf
+}
+
+// supports reports whether the findings leave the estimand supported, and
+// why not. The ATE needs both arms everywhere (so it also needs what the ATT
+// and ATC need); the ATO needs some overlap.
+func (pf *positivity) supports(target Estimand) (bool, string) {
+	switch target {
+	case ATE:
+		if pf.violated || pf.treatedOnly || pf.controlOnly {
+			why := append(append(append([]string{}, pf.violationWhy...), pf.treatedWhy...), pf.controlWhy...)
+			return false, strings.Join(dedupe(why), "; ")
+		}
+	case ATT:
+		if pf.treatedOnly {
+			return false, strings.Join(dedupe(pf.treatedWhy), "; ")
+		}
+	case ATC:
+		if pf.controlOnly {
+			return false, strings.Join(dedupe(pf.controlWhy), "; ")
+		}
+	case ATO:
+		if pf.noOverlap {
+			return false, "the arms' scores do not overlap at all: there is no overlap population"
+		}
+	}
+	return true, ""
+}
+
+func dedupe(s []string) []string {
+	seen := map[string]bool{}
+	var out []string
+	for _, v := range s {
+		if !seen[v] {
+			seen[v] = true
+			out = append(out, v)
+		}
+	}
+	return out
+}
+
+// unsupported is the reason the data do not support the estimand ("" when
+// they do), by the default verdict rules.
+func (sc *Scores) unsupported(target Estimand, cells []*Cells) string {
+	ok, why := sc.positivity(VerdictOptions{}, cells).supports(target)
+	if ok {
+		return ""
+	}
+	return why
+}
+
+// Remedy is one way to analyse data with positivity problems, with what it
+// costs: the units it drops, who they are, and the effective sample sizes
+// left.
+type Remedy struct {
+	// Action is "none", "target_att", "target_atc", "overlap_weights" or "trim".
+	Action   string `json:"action"`
+	Estimand string `json:"estimand"`
+	Text     string `json:"text"`
+	// Units removed from the analysis, per arm (trim only; a change of
+	// target keeps every unit but describes fewer: see Unrepresented).
+	DropsTreated int `json:"drops_treated"`
+	DropsControl int `json:"drops_control"`
+	// Unrepresented counts units in regions the new target population
+	// leaves out (target_att: controls without comparable treated units).
+	Unrepresented int `json:"unrepresented"`
+	// Who compares the dropped or unrepresented units with the rest on the
+	// design terms (up to 5, largest |SMD| first); WhoText says it in words.
+	Who     []ProfileRow `json:"who"`
+	WhoText string       `json:"who_text,omitempty"`
+	// For trim: the α and the scores kept.
+	Alpha Num       `json:"alpha,omitempty"`
+	Keep  *Interval `json:"keep,omitempty"`
+	// Kish effective sample sizes per arm under the remedy's weights.
+	ESSTreated Num `json:"ess_treated"`
+	ESSControl Num `json:"ess_control"`
+}
+
+// whoText describes in words how the masked units differ from the rest.
+func whoText(rows []ProfileRow, what string) string {
+	if len(rows) == 0 {
+		return ""
+	}
+	var parts []string
+	for k, r := range rows {
+		if k == 3 || math.Abs(r.SMD) < 0.1 {
+			break
+		}
+		parts = append(parts, fmt.Sprintf("%s (mean %s vs %s, SMD %+.2f)", r.Term, fmtG(r.MeanOutside), fmtG(r.MeanInside), r.SMD))
+	}
+	if len(parts) == 0 {
+		return what + " resemble the other units on every term (all |SMD| < 0.1)"
+	}
+	return what + " differ from the other units most in " + strings.Join(parts, ", ")
+}
+
+func countMask(m []bool) int {
+	k := 0
+	for _, v := range m {
+		if v {
+			k++
+		}
+	}
+	return k
+}
+
+func cleanProfile(rows []ProfileRow) []ProfileRow {
+	out := topProfile(rows, 5)
+	for i := range out {
+		if Num(out[i].SMD).IsNull() {
+			out[i].SMD = 0
+		}
+	}
+	return out
+}
+
+// remedies lists the remedies for the findings, the recommended one first.
+func (sc *Scores) remedies(pf *positivity, o VerdictOptions, adequate bool) []Remedy {
+	d := sc.Design
+	if adequate {
+		r := Remedy{Action: "none", Estimand: "ATE", Text: "none needed for positivity; the ATE is estimable on these covariates (check balance after weighting)",
+			ESSTreated: Num(math.NaN()), ESSControl: Num(math.NaN()), Who: []ProfileRow{}}
+		if w := sc.Weights(ATE); w.Err() == nil {
+			r.ESSTreated, r.ESSControl = Num(w.ESSTreated), Num(w.ESSControl)
+		}
+		return []Remedy{r}
+	}
+	var out []Remedy
+	ateOK, _ := pf.supports(ATE)
+	for _, t := range []Estimand{ATT, ATC} {
+		ok, _ := pf.supports(t)
+		if ateOK || !ok {
+			continue
+		}
+		mask, arm, other := pf.controlsAlone, "controls", "treated units"
+		action := "target_att"
+		if t == ATC {
+			mask, arm, other, action = pf.treatedAlone, "treated units", "controls", "target_atc"
+		}
+		k := countMask(mask)
+		r := Remedy{Action: action, Estimand: t.String(), Unrepresented: k, Who: []ProfileRow{},
+			ESSTreated: Num(math.NaN()), ESSControl: Num(math.NaN())}
+		r.Text = fmt.Sprintf("estimate the %s instead of the ATE: every unit of its target arm has comparable %s; the %d %s in regions without %s are not described by it (the ATE would extrapolate there)",
+			t, other, k, arm, other)
+		if k > 0 && k < d.N {
+			r.Who = cleanProfile(profile(d, mask))
+			r.WhoText = whoText(r.Who, fmt.Sprintf("the %d %s left out", k, arm))
+		}
+		if w := sc.Weights(t); w.Err() == nil {
+			r.ESSTreated, r.ESSControl = Num(w.ESSTreated), Num(w.ESSControl)
+		}
+		out = append(out, r)
+	}
+	if ok, _ := pf.supports(ATO); ok {
+		r := Remedy{Action: "overlap_weights", Estimand: "ATO", Who: []ProfileRow{}, ESSTreated: Num(math.NaN()), ESSControl: Num(math.NaN())}
+		r.Text = "estimate the ATO with overlap weights (1 − e for treated, e for controls; Li, Morgan & Zaslavsky 2018): no unit is dropped, units without comparable units in the other arm get weights near 0, and the estimand becomes the overlap population"
+		if w := sc.Weights(ATO); w.Err() == nil {
+			r.ESSTreated, r.ESSControl = Num(w.ESSTreated), Num(w.ESSControl)
+			r.Text += fmt.Sprintf(" (effective sample sizes: %.1f treated, %.1f control)", w.ESSTreated, w.ESSControl)
+		}
+		out = append(out, r)
+	}
+	// Trimming: the optimal α of Crump et al. (2009) when it trims, else the
+	// rule of thumb α = Extreme.
+	alpha, _ := crumpAlpha(sc.E)
+	how := fmt.Sprintf("the optimal α = %.3f of Crump, Hotz, Imbens & Mitnik (2009)", alpha)
+	if alpha == 0 || alpha >= 0.5 {
+		alpha = o.Extreme
+		how = fmt.Sprintf("α = %.2f (rule of thumb of Crump et al. 2009)", alpha)
+	}
+	drop := make([]bool, d.N)
+	var dt, dc int
+	for i, e := range sc.E {
+		if e < alpha || e > 1-alpha {
+			drop[i] = true
+			if d.T[i] == 1 {
+				dt++
+			} else {
+				dc++
+			}
+		}
+	}
+	if dt+dc > 0 && dt < d.Treated && dc < d.Control {
+		keep := Interval{alpha, 1 - alpha}
+		r := Remedy{Action: "trim", Estimand: "ATE", DropsTreated: dt, DropsControl: dc, Alpha: Num(alpha), Keep: &keep,
+			Who: cleanProfile(profile(d, drop)), ESSTreated: Num(math.NaN()), ESSControl: Num(math.NaN())}
+		r.Text = fmt.Sprintf("trim to scores in [%.3f, %.3f] by %s and estimate the ATE of the units kept: drops %d treated and %d controls; the estimand becomes the trimmed population",
+			alpha, 1-alpha, how, dt, dc)
+		r.WhoText = whoText(r.Who, fmt.Sprintf("the %d units dropped", dt+dc))
+		var s1, q1, s0, q0 float64
+		for i, e := range sc.E {
+			if drop[i] {
+				continue
+			}
+			w := rawWeight(ATE, d.T[i], e)
+			if d.T[i] == 1 {
+				s1, q1 = s1+w, q1+w*w
+			} else {
+				s0, q0 = s0+w, q0+w*w
+			}
+		}
+		r.ESSTreated, r.ESSControl = Num(kish(s1, q1)), Num(kish(s0, q0))
+		out = append(out, r)
+	}
+	if len(out) == 0 {
+		out = append(out, Remedy{Action: "none", Estimand: "", Who: []ProfileRow{}, ESSTreated: Num(math.NaN()), ESSControl: Num(math.NaN()),
+			Text: "no estimand is supported by these data on these covariates: the arms do not overlap; a comparison needs units that could have been in either arm"})
+	}
+	return out
+}
+
+// Verdict judges positivity from the scores and any positivity tables given.
+// Rules (each threshold in VerdictOptions, with its source):
+//   - violated: separation (treatment deterministic for a covariate level or
+//     range), a cell with an empty arm that chance does not explain
+//     (Cell.Chance < 0.05), or no common-support band at all;
+//   - limited: a share of units outside the band above MaxShareOutside, a
+//     share of extreme scores above MaxShareExtreme, sparse cells (thin,
+//     or lacking an arm by what may be chance) holding more than
+//     MaxShareOutside of the units (fewer: a note), or more than
+//     MaxShareOutside of an arm scored outside the other arm's range;
+//   - adequate otherwise.
+//
+// Supported estimands: the ATT when every treated region has controls (no
+// treated-only cell, level or range, and at most MaxShareOutside of the
+// treated scored outside the controls' range); the ATC symmetrically; the
+// ATE only without violations and when both the ATT and the ATC are
+// supported; the ATO (overlap weights, Li, Morgan & Zaslavsky 2018) always,
+// unless the arms' scores do not overlap at all.
+//
+// Remedies lists what to do, the recommended one first (also in Remedy),
+// each with its cost: a change of target (the ATT or ATC, when the ATE is
+// not supported but one of them is) with the units it no longer describes;
+// overlap weights with the effective sample sizes; trimming at the optimal
+// α of Crump et al. (2009) with the units it drops per arm and how they
+// differ from the units kept.
+func (sc *Scores) Verdict(o VerdictOptions, cells ...*Cells) *Verdict {
+	if err := sc.Err(); err != nil {
+		return &Verdict{err: err}
+	}
+	for _, c := range cells {
+		if err := c.Err(); err != nil {
+			return &Verdict{err: err}
+		}
+	}
+	o = o.withDefaults()
+	pf := sc.positivity(o, cells)
+	v := &Verdict{Options: o, TrimThreshold: o.Extreme, Reasons: pf.reasons, Notes: pf.notes, Supported: []string{}}
+	d := sc.Design
+	for i, e := range sc.E {
+		if e < o.Extreme || e > 1-o.Extreme {
 			if d.T[i] == 1 {
 				v.TrimTreated++
 			} else {
@@ -182,40 +489,21 @@ func (sc *Scores) Verdict(o VerdictOptions, cells ...*Cells) *Verdict {
 			}
 		}
 	}
-	if share := float64(ext) / float64(d.N); share > o.MaxShareExtreme {
-		limited = true
-		v.Reasons = append(v.Reasons, fmt.Sprintf("%.1f%% of units have scores below %.2f or above %.2f (threshold %.0f%%)", 100*share, o.Extreme, 1-o.Extreme, 100*o.MaxShareExtreme))
-	}
 	switch {
-	case violated:
+	case pf.violated:
 		v.Status = Violated
-	case limited:
+	case pf.limited:
 		v.Status = Limited
 	default:
 		v.Status = Adequate
 	}
-	if !violated {
-		v.Supported = append(v.Supported, "ATE")
+	for _, t := range []Estimand{ATE, ATT, ATC, ATO} {
+		if ok, _ := pf.supports(t); ok {
+			v.Supported = append(v.Supported, t.String())
+		}
 	}
-	if !treatedOnly {
-		v.Supported = append(v.Supported, "ATT")
-	}
-	if !controlOnly {
-		v.Supported = append(v.Supported, "ATC")
-	}
-	v.Supported = append(v.Supported, "ATO")
-	switch {
-	case v.Status == Adequate:
-		v.Remedy = "none needed for positivity; the ATE is estimable on these covariates (check balance after weighting)"
-	case violated && !treatedOnly:
-		v.Remedy = "estimate the ATT (every treated unit has comparable controls), or the ATO with overlap weights; the ATE would extrapolate into regions without treated units"
-	case violated && !controlOnly:
-		v.Remedy = "estimate the ATC, or the ATO with overlap weights; the ATE would extrapolate into regions without controls"
-	case violated:
-		v.Remedy = fmt.Sprintf("restrict the population: overlap weights (ATO), or trim to scores in [%.2f, %.2f] (drops %d treated and %d controls) — the estimand then changes to the trimmed population", o.Extreme, 1-o.Extreme, v.TrimTreated, v.TrimControl)
-	default:
-		v.Remedy = fmt.Sprintf("prefer overlap weights (ATO), or trim to scores in [%.2f, %.2f] (drops %d treated and %d controls; the estimand becomes the trimmed population); report how far the estimate moves", o.Extreme, 1-o.Extreme, v.TrimTreated, v.TrimControl)
-	}
+	v.Remedies = sc.remedies(pf, o, v.Status == Adequate)
+	v.Remedy = v.Remedies[0].Text
 	return v
 }
 
@@ -232,8 +520,20 @@ func (v *Verdict) String() string {
 	for _, r := range v.Notes {
 		fmt.Fprintf(&b, "  note: %s\n", r)
 	}
-	fmt.Fprintf(&b, "  estimands the data support: %s\n", strings.Join(v.Supported, ", "))
+	sup := strings.Join(v.Supported, ", ")
+	if sup == "" {
+		sup = "none"
+	}
+	fmt.Fprintf(&b, "  estimands the data support: %s\n", sup)
 	fmt.Fprintf(&b, "  remedy: %s\n", v.Remedy)
+	for k, r := range v.Remedies {
+		if k > 0 {
+			fmt.Fprintf(&b, "  alternative: %s\n", r.Text)
+		}
+		if r.WhoText != "" {
+			fmt.Fprintf(&b, "    who: %s\n", r.WhoText)
+		}
+	}
 	fmt.Fprintf(&b, "  These diagnostics cannot verify unconfoundedness; estimates depend on the covariates measured.\n")
 	return b.String()
 }

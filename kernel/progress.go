@@ -154,7 +154,7 @@ func textBar(done, total, width int) string {
 func progressHTML(title string, done, total int, eta string) string {
 	pct := fraction(done, total) * 100
 	var b strings.Builder
-	fmt.Fprintf(&b, `<div class="cp-progress" role="progressbar" style="font-family:system-ui,sans-serif;font-size:0.85rem;color:%s;margin:0.3em 0;"`, widgets.ColorInk)
+	fmt.Fprintf(&b, `<div class="cp-progress" role="progressbar" style="font-family:system-ui,sans-serif;font-size:0.85em;color:%s;margin:0.3em 0;"`, widgets.ColorInk)
 	if total > 0 {
 		fmt.Fprintf(&b, ` aria-valuemin="0" aria-valuemax="%d" aria-valuenow="%d"`, total, done)
 	}

@@ -39,8 +39,8 @@ var (
 	libraryShown bool
 	// pageParts collects, outside a notebook, what was shown, for HTMLPageEnv.
 	pageParts []string
-	// stdout is where the text form goes outside a notebook (a variable for tests).
-	stdout io.Writer = os.Stdout
+	// stdout, when set (by tests), replaces os.Stdout for the text form.
+	stdout io.Writer
 	// syncTimeout bounds the wait for GoNB to confirm it received a display.
 	syncTimeout = 10 * time.Second
 )
@@ -96,10 +96,17 @@ func Show(xs ...any) {
 			protocol.MIMETextHTML:  b.String(),
 			protocol.MIMETextPlain: text,
 		}})
-		syncWithKernel()
-		return
+		if gonbui.Error() == nil {
+			syncWithKernel()
+			return
+		}
+		// The pipe to GoNB broke: the text still reaches the cell through stdout.
 	}
-	fmt.Fprintln(stdout, text)
+	w := stdout
+	if w == nil {
+		w = os.Stdout
+	}
+	fmt.Fprintln(w, text)
 	if path := os.Getenv(HTMLPageEnv); path != "" {
 		pageParts = append(pageParts, htmlParts...)
 		if err := writePage(path, pageParts); err != nil {
@@ -169,6 +176,9 @@ func writePage(path string, parts []string) error {
 		js = nil
 	}
 	title := "counterpart · " + filepath.Base(os.Args[0])
+	if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
+		return err
+	}
 	tmp := path + ".tmp"
 	if err := os.WriteFile(tmp, []byte(widgets.Page(title, body, js)), 0o644); err != nil {
 		return err
@@ -200,4 +210,3 @@ func cdnFallbackHTML(cause error) string {
 		`s.onload=s.onerror=function(){window.define=d;};s.src=` + fmt.Sprintf("%q", EChartsCDN) +
 		`;document.head.appendChild(s);})();</script>`
 }
-

@@ -4,6 +4,7 @@ import (
 	"context"
 	"encoding/json"
 	"fmt"
+	"html"
 	"io"
 	"os"
 	"path/filepath"
@@ -24,9 +25,10 @@ type RunOptions struct {
 
 // CellError is a notebook cell that failed.
 type CellError struct {
-	Cell    int    // 1-based position among all cells of the notebook
-	Source  string // first line of the cell's source
-	Message string // what the kernel reported
+	Cell           int    // 1-based position among all cells of the notebook
+	ExecutionCount int    // the "In [n]" number, 0 when the cell did not run
+	Source         string // first line of the cell's source
+	Message        string // what the kernel reported
 }
 
 // CellErrors is returned by Run when cells failed.
@@ -40,7 +42,11 @@ func (ce CellErrors) Error() string {
 		fmt.Fprintf(&b, "%d cells failed:", len(ce))
 	}
 	for _, e := range ce {
-		fmt.Fprintf(&b, "\ncell %d (%s): %s", e.Cell, e.Source, indent(e.Message))
+		fmt.Fprintf(&b, "\ncell %d", e.Cell)
+		if e.ExecutionCount > 0 {
+			fmt.Fprintf(&b, " (In [%d])", e.ExecutionCount)
+		}
+		fmt.Fprintf(&b, " %q:\n    %s", e.Source, indent(e.Message))
 	}
 	return b.String()
 }
@@ -120,6 +126,9 @@ func Run(ctx context.Context, o RunOptions) (*RunResult, error) {
 	fmt.Fprintf(o.Out, "executed %d code cells in %s, %d failed\n", codeCells, res.Duration.Round(100*time.Millisecond), len(cellErrs))
 
 	if o.Executed != "" {
+		if err := os.MkdirAll(filepath.Dir(o.Executed), 0o755); err != nil {
+			return nil, err
+		}
 		if err := os.WriteFile(o.Executed, data, 0o644); err != nil {
 			return nil, err
 		}
@@ -181,15 +190,17 @@ func exportHTML(ctx context.Context, jupyterCmd, executed, out string) (string, 
 
 type notebookJSON struct {
 	Cells []struct {
-		CellType string          `json:"cell_type"`
-		Source   json.RawMessage `json:"source"`
-		Outputs  []struct {
-			OutputType string          `json:"output_type"`
-			Name       string          `json:"name"`
-			Text       json.RawMessage `json:"text"`
-			EName      string          `json:"ename"`
-			EValue     string          `json:"evalue"`
-			Traceback  []string        `json:"traceback"`
+		CellType       string          `json:"cell_type"`
+		Source         json.RawMessage `json:"source"`
+		ExecutionCount *int            `json:"execution_count"`
+		Outputs        []struct {
+			OutputType string                     `json:"output_type"`
+			Name       string                     `json:"name"`
+			Text       json.RawMessage            `json:"text"`
+			Data       map[string]json.RawMessage `json:"data"`
+			EName      string                     `json:"ename"`
+			EValue     string                     `json:"evalue"`
+			Traceback  []string                   `json:"traceback"`
 		} `json:"outputs"`
 	} `json:"cells"`
 }
@@ -210,12 +221,26 @@ func multiline(raw json.RawMessage) string {
 	return ""
 }
 
-var ansi = regexp.MustCompile(`\x1b\[[0-9;]*[A-Za-z]`)
+var (
+	ansi = regexp.MustCompile(`\x1b\[[0-9;]*[A-Za-z]`)
+	// GoNB's HTML report of a compile error: an optional cell/line badge, the
+	// file location, then the compiler's message.
+	gonbErrLine = regexp.MustCompile(`(?:<span class="gonb-cell-line-info">([^<]*)</span>\s*)?<span class="gonb-err-location">[^<]*</span>([^<\n]*)`)
+	// The last stderr line GoNB writes when the cell's program exits non-zero.
+	exitLine = regexp.MustCompile(`^(exit status \d+|signal: [a-z ]+)$`)
+)
 
 // ScanNotebook finds the failed cells of an executed notebook. GoNB reports
-// a failed cell (a compile error, a non-zero exit, a panic) with an "error"
-// output; the compiler's or the panic's own words arrive before it on the
-// cell's stderr stream, so the message joins both.
+// failures in two ways:
+//   - a compile error: an HTML display (class gonb-err-location, holding the
+//     compiler's messages) followed by an "error" output that only says the
+//     build failed;
+//   - a program that exits non-zero (a panic, log.Fatal, os.Exit(1)): no
+//     "error" output at all, only the program's stderr followed by GoNB's
+//     own stderr line "exit status N".
+//
+// Both count as failures; the message gathers the compiler's lines or the
+// panic, with the cell and line GoNB attributes them to.
 func ScanNotebook(data []byte) (CellErrors, int, error) {
 	var nb notebookJSON
 	if err := json.Unmarshal(data, &nb); err != nil {
@@ -229,12 +254,16 @@ func ScanNotebook(data []byte) (CellErrors, int, error) {
 		}
 		code++
 		var stderr strings.Builder
-		var failure []string
+		var compile, failure []string
 		for _, out := range c.Outputs {
 			switch out.OutputType {
 			case "stream":
 				if out.Name == "stderr" {
 					stderr.WriteString(multiline(out.Text))
+				}
+			case "display_data", "execute_result":
+				if h := multiline(out.Data["text/html"]); strings.Contains(h, "gonb-err-location") {
+					compile = append(compile, gonbCompileErrors(h)...)
 				}
 			case "error":
 				msg := strings.TrimSpace(ansi.ReplaceAllString(out.EValue, ""))
@@ -247,21 +276,80 @@ func ScanNotebook(data []byte) (CellErrors, int, error) {
 				failure = append(failure, msg)
 			}
 		}
-		if len(failure) == 0 {
+		errText := strings.TrimSpace(ansi.ReplaceAllString(stderr.String(), ""))
+		exited := exitLine.MatchString(lastLine(errText))
+		if len(failure) == 0 && len(compile) == 0 && !exited {
 			continue
 		}
-		msg := strings.Join(failure, "\n")
-		if s := strings.TrimSpace(ansi.ReplaceAllString(stderr.String(), "")); s != "" {
-			msg += "\n" + tail(s, 20)
+		var msg []string
+		msg = append(msg, compile...)
+		if len(compile) == 0 {
+			msg = append(msg, failure...)
 		}
-		errs = append(errs, CellError{Cell: i + 1, Source: firstSourceLine(multiline(c.Source)), Message: msg})
+		if errText != "" {
+			msg = append(msg, summarizeStderr(errText))
+		}
+		e := CellError{Cell: i + 1, Source: firstSourceLine(multiline(c.Source)), Message: strings.Join(msg, "\n")}
+		if c.ExecutionCount != nil {
+			e.ExecutionCount = *c.ExecutionCount
+		}
+		errs = append(errs, e)
 	}
 	return errs, code, nil
 }
 
+// gonbCompileErrors turns GoNB's HTML compile-error report into lines like
+// "Cell[2]: Line 2: undefined: x".
+func gonbCompileErrors(h string) []string {
+	var lines []string
+	for _, m := range gonbErrLine.FindAllStringSubmatch(h, -1) {
+		msg := strings.TrimSpace(html.UnescapeString(m[2]))
+		if where := strings.TrimSpace(html.UnescapeString(m[1])); where != "" {
+			msg = where + ": " + msg
+		}
+		lines = append(lines, msg)
+	}
+	if len(lines) == 0 {
+		lines = append(lines, "compile error (see the cell's output)")
+	}
+	return lines
+}
+
+// summarizeStderr keeps what matters of a failed program's stderr: from a
+// panic, its message and the first frame GoNB maps to a cell; otherwise the
+// last lines.
+func summarizeStderr(s string) string {
+	lines := strings.Split(s, "\n")
+	for i, l := range lines {
+		if !strings.HasPrefix(l, "panic: ") {
+			continue
+		}
+		keep := []string{l}
+		for _, f := range lines[i+1:] {
+			if strings.Contains(f, "[[ Cell [") {
+				keep = append(keep, "at "+strings.TrimSpace(f))
+				break
+			}
+		}
+		if last := strings.TrimSpace(lines[len(lines)-1]); last != l {
+			keep = append(keep, last)
+		}
+		return strings.Join(keep, "\n")
+	}
+	return tail(s, 20)
+}
+
+func lastLine(s string) string {
+	s = strings.TrimSpace(s)
+	if i := strings.LastIndexByte(s, '\n'); i >= 0 {
+		s = s[i+1:]
+	}
+	return strings.TrimSpace(s)
+}
+
 func firstSourceLine(src string) string {
 	for _, l := range strings.Split(src, "\n") {
-		if l = strings.TrimSpace(l); l != "" {
+		if l = strings.TrimSpace(l); l != "" && l != "%%" {
 			if len(l) > 60 {
 				l = l[:57] + "..."
 			}
@@ -270,4 +358,3 @@ func firstSourceLine(src string) string {
 	}
 	return "empty cell"
 }
-

@@ -1,0 +1,23 @@
+package causal
+import ("testing";"fmt";"encoding/json")
+func TestScratchViews(t *testing.T){
+	s := Load("../testdata/water_audits.csv").Treat("audit").TreatedLevel("yes").Outcome("litres_per_day").Adjust("district","income_band","household_size","lot_m2","home_age","pool","last_summer_lpd")
+	sc := s.Propensity()
+	fmt.Print(sc)
+	fmt.Print(sc.Verdict(VerdictOptions{}, s.Cells("district","pool")))
+	fmt.Print(sc.Effects(ATE))
+	fmt.Print(sc.Effects(ATT))
+	fmt.Print(sc.Effects(ATO))
+	fmt.Print(sc.Trim(CrumpOptimal()))
+	fmt.Print(sc.Trim(Percentile(5,95)))
+	fmt.Print(sc.Trim(Symmetric(0.1)).Effects(ATE))
+	fmt.Print(sc.Sweep(AIPW, ATE))
+	a := sc.Extrapolation(ATE)
+	fmt.Print(a)
+	fmt.Print(a.Curve("lot_m2"))
+	fmt.Print(sc.Effect(AIPW, ATT).EValue())
+	fmt.Print(EValueRR(3.9, 1.8, 8.7))
+	fmt.Print(sc.Weights(ATE).Truncate(1,99))
+	b,_ := json.Marshal(sc.Verdict(VerdictOptions{}, s.Cells("district","pool")))
+	fmt.Println(string(b))
+}

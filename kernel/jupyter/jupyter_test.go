@@ -1,0 +1,230 @@
+package jupyter
+
+import (
+	"archive/tar"
+	"bytes"
+	"compress/gzip"
+	"encoding/json"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"golang.org/x/mod/module"
+	modzip "golang.org/x/mod/zip"
+)
+
+// failing.executed.ipynb is kernel/testdata/failing.ipynb as executed by
+// Jupyter with GoNB v0.11.1 (kept as produced by `counterpart run --executed`).
+func TestScanNotebookFindsGoNBFailures(t *testing.T) {
+	data, err := os.ReadFile("../testdata/failing.executed.ipynb")
+	if err != nil {
+		t.Fatal(err)
+	}
+	errs, code, err := ScanNotebook(data)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if code != 5 {
+		t.Fatalf("want 5 code cells, got %d", code)
+	}
+	if len(errs) != 3 {
+		t.Fatalf("want 3 failed cells, got %d: %v", len(errs), errs)
+	}
+	want := []struct {
+		cell, in int
+		has      []string
+	}{
+		{3, 2, []string{"Cell[2]: Line 2: undefined: undefinedThing"}},                     // compile error: only GoNB's HTML has the words
+		{4, 3, []string{"panic: assignment to entry in nil map", "[[ Cell [3] Line 3 ]]"}}, // panic: stderr only, no error output
+		{5, 4, []string{"cannot open data.csv: no such file", "exit status 1"}},            // log.Fatal
+	}
+	for i, w := range want {
+		e := errs[i]
+		if e.Cell != w.cell || e.ExecutionCount != w.in {
+			t.Errorf("error %d: cell %d (In [%d]), want cell %d (In [%d])", i, e.Cell, e.ExecutionCount, w.cell, w.in)
+		}
+		for _, h := range w.has {
+			if !strings.Contains(e.Message, h) {
+				t.Errorf("cell %d message %q lacks %q", e.Cell, e.Message, h)
+			}
+		}
+		if strings.Contains(e.Message, "goroutine 1 [running]") {
+			t.Errorf("cell %d message carries the goroutine dump", e.Cell)
+		}
+	}
+	msg := CellErrors(errs).Error()
+	if !strings.HasPrefix(msg, "3 cells failed:") || !strings.Contains(msg, "cell 4 (In [3]) \"var counts map[string]int\":") {
+		t.Fatalf("summary:\n%s", msg)
+	}
+}
+
+func TestScanNotebookCleanAndStderrNoise(t *testing.T) {
+	nb := `{"cells":[
+ {"cell_type":"markdown","source":"# t"},
+ {"cell_type":"code","execution_count":1,"source":["%%\n","log.Print(\"x\")"],"outputs":[
+   {"output_type":"stream","name":"stderr","text":["2026/01/01 warning: exit status is logged\n"]}]},
+ {"cell_type":"code","execution_count":2,"source":"","outputs":[
+   {"output_type":"display_data","data":{"text/html":"<b>fine</b>"}}]}
+]}`
+	errs, code, err := ScanNotebook([]byte(nb))
+	if err != nil || code != 2 || len(errs) != 0 {
+		t.Fatalf("got %v, %d, %v; want no failures in 2 code cells", errs, code, err)
+	}
+	if _, _, err := ScanNotebook([]byte("{")); err == nil {
+		t.Fatal("broken JSON must be an error")
+	}
+}
+
+func writeTree(t *testing.T, root string, files map[string]string) {
+	t.Helper()
+	for name, content := range files {
+		p := filepath.Join(root, filepath.FromSlash(name))
+		if err := os.MkdirAll(filepath.Dir(p), 0o755); err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(p, []byte(content), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+}
+
+func TestPublishModuleMakesProxyLayout(t *testing.T) {
+	repo, proxy := t.TempDir(), t.TempDir()
+	writeTree(t, repo, map[string]string{
+		"go.mod":            "module " + ModulePath + "\n\ngo 1.26\n",
+		"a.go":              "package counterpart\n",
+		"widgets/w.go":      "package widgets\n",
+		".git/HEAD":         "ref: refs/heads/main\n",
+		"nested/go.mod":     "module example.com/nested\n",
+		"nested/n.go":       "package nested\n",
+		"testdata/data.csv": "a,b\n1,2\n",
+	})
+	v1, did, err := publishModule(repo, proxy, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.HasPrefix(v1, "v0.0.") || !strings.HasPrefix(did, "published") {
+		t.Fatalf("version %q, did %q", v1, did)
+	}
+	if err := module.Check(ModulePath, v1); err != nil {
+		t.Fatalf("version %s is not a valid module version: %v", v1, err)
+	}
+	vdir := filepath.Join(proxy, filepath.FromSlash(ModulePath), "@v")
+	list, err := os.ReadFile(filepath.Join(vdir, "list"))
+	if err != nil || strings.TrimSpace(string(list)) != v1 {
+		t.Fatalf("list = %q, %v", list, err)
+	}
+	var info struct{ Version, Time string }
+	data, _ := os.ReadFile(filepath.Join(vdir, v1+".info"))
+	if err := json.Unmarshal(data, &info); err != nil || info.Version != v1 || info.Time == "" {
+		t.Fatalf(".info = %s (%v)", data, err)
+	}
+	// The zip passes the module zip checks the go command applies.
+	zipPath := filepath.Join(vdir, v1+".zip")
+	cf, err := modzip.CheckZip(module.Version{Path: ModulePath, Version: v1}, zipPath)
+	if err != nil {
+		t.Fatalf("zip rejected: %v", err)
+	}
+	got := strings.Join(cf.Valid, " ")
+	for _, want := range []string{"a.go", "go.mod", "widgets/w.go", "testdata/data.csv"} {
+		if !strings.Contains(got, want) {
+			t.Errorf("zip lacks %s (has %s)", want, got)
+		}
+	}
+	for _, not := range []string{".git/HEAD", "nested/"} {
+		if strings.Contains(got, not) {
+			t.Errorf("zip must not hold %s (has %s)", not, got)
+		}
+	}
+
+	// Unchanged checkout: same version, skipped.
+	v2, did, err := publishModule(repo, proxy, false)
+	if err != nil || v2 != v1 || !strings.HasPrefix(did, "skipped") {
+		t.Fatalf("second run: %s, %q, %v; want %s skipped", v2, did, err, v1)
+	}
+	// A changed file: a newer version, and the old one is gone from the proxy.
+	writeTree(t, repo, map[string]string{"a.go": "package counterpart\n\nconst X = 1\n"})
+	v3, _, err := publishModule(repo, proxy, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if v3 <= v1 || len(v3) != len(v1) {
+		t.Fatalf("new version %s must sort after %s", v3, v1)
+	}
+	if fileExists(filepath.Join(vdir, v1+".zip")) {
+		t.Fatal("old zip left in the proxy")
+	}
+	if list, _ := os.ReadFile(filepath.Join(vdir, "list")); strings.TrimSpace(string(list)) != v3 {
+		t.Fatalf("list after change = %q", list)
+	}
+}
+
+func TestExtractFromTgz(t *testing.T) {
+	var buf bytes.Buffer
+	gz := gzip.NewWriter(&buf)
+	tw := tar.NewWriter(gz)
+	for name, body := range map[string]string{
+		"package/dist/echarts.min.js": "window.echarts={}",
+		"package/LICENSE":             "Apache",
+		"package/index.js":            "ignored",
+	} {
+		if err := tw.WriteHeader(&tar.Header{Name: name, Mode: 0o644, Size: int64(len(body)), Typeflag: tar.TypeReg}); err != nil {
+			t.Fatal(err)
+		}
+		tw.Write([]byte(body))
+	}
+	tw.Close()
+	gz.Close()
+	p := filepath.Join(t.TempDir(), "e.tgz")
+	os.WriteFile(p, buf.Bytes(), 0o644)
+	got, err := extractFromTgz(p, map[string]string{"package/dist/echarts.min.js": "echarts.min.js", "package/LICENSE": "LICENSE", "package/NOTICE": "NOTICE"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if string(got["echarts.min.js"]) != "window.echarts={}" || string(got["LICENSE"]) != "Apache" || len(got) != 2 {
+		t.Fatalf("got %v", got)
+	}
+	if _, err := extractFromTgz(p, map[string]string{"package/LICENSE": "LICENSE"}); err == nil || !strings.Contains(err.Error(), "echarts.min.js") {
+		t.Fatalf("a package without the bundle must be an error naming it, got %v", err)
+	}
+}
+
+func TestKernelSpecEnvironment(t *testing.T) {
+	inst := &Installed{BinDir: "/c/bin", EChartsPath: "/c/echarts.min.js", ModuleVersion: "v0.0.1"}
+	spec := kernelSpec(inst, DefaultDisplayName, "/c/proxy", "/m", "/go/bin")
+	if strings.Join(spec.Argv, " ") != "/c/bin/gonb --kernel {connection_file}" {
+		t.Fatalf("argv %v", spec.Argv)
+	}
+	want := map[string]string{
+		"GOPROXY":             "file:///c/proxy,file:///m/cache/download",
+		"GONOSUMDB":           ModulePath,
+		"GOFLAGS":             "-mod=mod",
+		"GOTOOLCHAIN":         "local",
+		"COUNTERPART_ECHARTS": "/c/echarts.min.js",
+	}
+	for k, v := range want {
+		if spec.Env[k] != v {
+			t.Errorf("env %s = %q, want %q", k, spec.Env[k], v)
+		}
+	}
+	if !strings.HasPrefix(spec.Env["PATH"], "/c/bin:/go/bin") {
+		t.Errorf("PATH must start with the tool folder (gonb runs goimports from PATH), got %q", spec.Env["PATH"])
+	}
+}
+
+func TestFindModuleRoot(t *testing.T) {
+	root, err := FindModuleRoot(".")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !fileExists(filepath.Join(root, "kernel", "jupyter", "setup.go")) {
+		t.Fatalf("root %s is not this checkout", root)
+	}
+	other := t.TempDir()
+	writeTree(t, other, map[string]string{"go.mod": "module example.com/other\n"})
+	// Outside the checkout the source location of this binary is used.
+	if r, err := FindModuleRoot(other); err != nil || r != root {
+		t.Fatalf("from another module: %s, %v; want %s", r, err, root)
+	}
+}
