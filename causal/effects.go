@@ -188,7 +188,8 @@ func checkEstimator(est Estimator, target Estimand) error {
 // Flag marks something about an Effect that a reader must see.
 type Flag struct {
 	// Code is one of: unsupported_estimand, constant_outcome,
-	// se_unavailable, trimmed_population.
+	// se_unavailable, trimmed_population, extrapolation,
+	// restricted_population.
 	Code    string `json:"code"`
 	Message string `json:"message"`
 }
@@ -297,7 +298,20 @@ func (sc *Scores) Effect(est Estimator, target Estimand, cells ...*Cells) *Effec
 	if constantOutcome(d.Y) {
 		eff.flag("constant_outcome", fmt.Sprintf("the outcome %q takes the single value %g in every row used: every effect is 0 and has no sampling variability; check the outcome column", d.roles.Outcome, d.Y[0]))
 	}
-	out, err := evaluate(sc, est, target, nil, nil, nil, true)
+	var oc *outcomes
+	if est.usesOutcomeModels() {
+		m1, m0, err := outcomeModels(d, nil, true)
+		if err != nil {
+			eff.err = fmt.Errorf("%s: %w", est, err)
+			return eff
+		}
+		oc = &outcomes{m1: m1, m0: m0}
+		if est == AIPW {
+			oc.f1, oc.f0 = predictInto(nil, d, m1, nil), predictInto(nil, d, m0, nil)
+		}
+		eff.aliasFlags(d, oc)
+	}
+	out, err := evaluate(sc, est, target, nil, oc, nil, true)
 	if err != nil {
 		eff.err = err
 		return eff
@@ -322,6 +336,50 @@ func (sc *Scores) Effect(est Estimator, target Estimand, cells ...*Cells) *Effec
 type outcomes struct {
 	m1, m0 *olsFit
 	f1, f0 []float64
+}
+
+// aliasFlags flags predictions of an arm model that left out a term constant
+// in its arm, for units with another value of that term: there the model
+// cannot know the term's effect and extrapolates.
+func (eff *Effect) aliasFlags(d *Design, oc *outcomes) {
+	for a, m := range []*olsFit{oc.m1, oc.m0} {
+		if len(m.aliased) == 0 {
+			continue
+		}
+		name, other := "f1", "treated"
+		if a == 1 {
+			name, other = "f0", "control"
+		}
+		used := func(t float64) bool {
+			if eff.Estimator == RegressionAdjustment {
+				return inTarget(eff.Estimand, t)
+			}
+			// AIPW: f1 enters the ATE and ATC, f0 the ATE and ATT.
+			return eff.Estimand == ATE || (a == 0 && eff.Estimand == ATC) || (a == 1 && eff.Estimand == ATT)
+		}
+		k := 0
+		for i := 0; i < d.N; i++ {
+			if !used(d.T[i]) {
+				continue
+			}
+			for c, j := range m.aliased {
+				if d.X[i*d.P+j] != m.aliasValue[c] {
+					k++
+					break
+				}
+			}
+		}
+		var terms []string
+		for c, j := range m.aliased {
+			terms = append(terms, fmt.Sprintf("%s (%g for every %s unit)", d.Terms[j].Name, m.aliasValue[c], other))
+		}
+		msg := fmt.Sprintf("%s, the %s-arm outcome model, leaves out %s: it cannot be estimated in that arm", name, other, strings.Join(terms, ", "))
+		if k > 0 {
+			eff.flag("extrapolation", fmt.Sprintf("%s; its predictions for %d unit%s with other values assume the term has no effect — extrapolation beyond the %s units' data", msg, k, plural(k, "", "s"), other))
+		} else {
+			eff.Notes = append(eff.Notes, msg+"; no prediction needs it")
+		}
+	}
 }
 
 // evaluate computes the estimator on the scores' design. e, oc and fw may
@@ -389,7 +447,10 @@ func evaluate(sc *Scores, est Estimator, target Estimand, e []float64, oc *outco
 	default:
 		return estOut{}, fmt.Errorf("%s does not estimate the %s", est, target)
 	}
-	mu1, mu0 := weightedMeans(t, d.Y, ee, fw, f1, f0)
+	mu1, mu0, err := weightedMeans(t, d.Y, ee, fw, f1, f0)
+	if err != nil {
+		return estOut{}, fmt.Errorf("%s for the %s: %w", est, target, err)
+	}
 	out := estOut{value: mu1 - mu0, mu1: mu1, mu0: mu0, v11: nan, v00: nan, v10: nan}
 	if withSE && fw == nil {
 		pb := newPropensityBlock(sc)

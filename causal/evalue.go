@@ -20,10 +20,10 @@ import (
 // limit nearest the null (1 when the interval includes the null): the
 // strength needed to move the interval to include 1.
 type EValue struct {
-	RR   float64  // risk ratio (or its approximation)
-	CI   Interval // 95% interval on the same scale (NaN when not known)
-	Point float64 // E-value of RR
-	Limit float64 // E-value of the CI limit nearest 1 (NaN when CI unknown)
+	RR    float64  // risk ratio (or its approximation)
+	CI    Interval // 95% interval on the same scale (NaN when not known)
+	Point float64  // E-value of RR
+	Limit float64  // E-value of the CI limit nearest 1 (NaN when CI unknown)
 	// Scale says what RR is: "risk ratio", "risk ratio of the estimated
 	// potential-outcome means" (0/1 outcome) or "approximate risk ratio
 	// exp(0.91·d)" (continuous outcome).

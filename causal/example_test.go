@@ -79,3 +79,13 @@ func ExampleVerdict_String() {
 	//   remedy: none needed for positivity; the ATE is estimable on these covariates (check balance after weighting)
 	//   These diagnostics cannot verify unconfoundedness; estimates depend on the covariates measured.
 }
+
+func ExampleFromColumns() {
+	s := causal.FromColumns([]string{"x", "arm"},
+		map[string][]float64{"x": {1, 2, 3, 4, 5, 6}},
+		map[string][]string{"arm": {"a", "b", "a", "b", "a", "b"}}).
+		Treat("arm").TreatedLevel("b").Adjust("x")
+	d, err := s.Design()
+	fmt.Println(err, d.Treated, d.Control)
+	// Output: <nil> 3 3
+}

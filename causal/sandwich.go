@@ -1,6 +1,7 @@
 package causal
 
 import (
+	"fmt"
 	"math"
 
 	"gonum.org/v1/gonum/mat"
@@ -136,8 +137,9 @@ var (
 )
 
 // weightedMeans computes μ1 and μ0 of a weighting estimator with frequency
-// weights fw (nil = 1).
-func weightedMeans(t, y, e, fw []float64, f1, f0 weightForm) (mu1, mu0 float64) {
+// weights fw (nil = 1). A zero denominator (every weight of an arm is 0, as
+// with overlap weights when every unit is scored exactly 0 or 1) is an error.
+func weightedMeans(t, y, e, fw []float64, f1, f0 weightForm) (mu1, mu0 float64, err error) {
 	var n1, d1, n0, d0 float64
 	for i := range t {
 		f := 1.0
@@ -154,7 +156,14 @@ func weightedMeans(t, y, e, fw []float64, f1, f0 weightForm) (mu1, mu0 float64) 
 		n0 += f * a * y[i]
 		d0 += f * b
 	}
-	return n1 / d1, n0 / d0
+	if d1 == 0 || d0 == 0 {
+		arm := "treated"
+		if d0 == 0 {
+			arm = "control"
+		}
+		return 0, 0, fmt.Errorf("the weights of the %s arm sum to 0: every unit there is scored exactly 0 or 1 (separation), so no unit has a counterpart in the other arm", arm)
+	}
+	return n1 / d1, n0 / d0, nil
 }
 
 // sandwichMeans returns the covariance of (μ1, μ0) from the M-estimation

@@ -52,6 +52,17 @@ func FromSource(src Source) *Study {
 	return &Study{src: src}
 }
 
+// FromColumns starts a Study on in-memory columns (see NewFrame): numeric
+// columns in num, text columns in text, in the order given (nil: sorted
+// names). An error, such as columns of unequal length, is kept inside.
+func FromColumns(order []string, num map[string][]float64, text map[string][]string) *Study {
+	f, err := NewFrame(order, num, text)
+	if err != nil {
+		return &Study{err: err}
+	}
+	return FromSource(f)
+}
+
 func (s *Study) clone() *Study {
 	if s == nil {
 		return &Study{err: errors.New("nil Study: start with causal.Load or causal.FromSource")}

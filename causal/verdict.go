@@ -365,16 +365,18 @@ func (sc *Scores) remedies(pf *positivity, o VerdictOptions, adequate bool) []Re
 		if ateOK || !ok {
 			continue
 		}
-		mask, arm, other := pf.controlsAlone, "controls", "treated units"
+		// For the ATT: every treated unit has comparable controls; the
+		// controls in regions without treated units are left out.
+		mask, target, arm, other := pf.controlsAlone, "treated unit", "controls", "treated units"
 		action := "target_att"
 		if t == ATC {
-			mask, arm, other, action = pf.treatedAlone, "treated units", "controls", "target_atc"
+			mask, target, arm, other, action = pf.treatedAlone, "control", "treated units", "controls", "target_atc"
 		}
 		k := countMask(mask)
 		r := Remedy{Action: action, Estimand: t.String(), Unrepresented: k, Who: []ProfileRow{},
 			ESSTreated: Num(math.NaN()), ESSControl: Num(math.NaN())}
-		r.Text = fmt.Sprintf("estimate the %s instead of the ATE: every unit of its target arm has comparable %s; the %d %s in regions without %s are not described by it (the ATE would extrapolate there)",
-			t, other, k, arm, other)
+		r.Text = fmt.Sprintf("estimate the %s instead of the ATE: every %s has comparable %s; the %d %s in regions without %s are not described by it (the ATE would extrapolate there)",
+			t, target, arm, k, arm, other)
 		if k > 0 && k < d.N {
 			r.Who = cleanProfile(profile(d, mask))
 			r.WhoText = whoText(r.Who, fmt.Sprintf("the %d %s left out", k, arm))

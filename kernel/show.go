@@ -16,6 +16,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"reflect"
 	"strings"
 	"sync"
 	"time"
@@ -139,6 +140,10 @@ func render(x any) (html, text string) {
 			html, text = widgets.ErrorPanel(err), widgets.ErrorText(err)
 		}
 	}()
+	if fromCausal(x) {
+		v := widgets.View(x)
+		return v.HTML(), v.String()
+	}
 	switch v := x.(type) {
 	case nil:
 		return pre("<nil>"), "<nil>"
@@ -209,4 +214,17 @@ func cdnFallbackHTML(cause error) string {
 		`var s=document.createElement("script"),d=window.define;window.define=undefined;` +
 		`s.onload=s.onerror=function(){window.define=d;};s.src=` + fmt.Sprintf("%q", EChartsCDN) +
 		`;document.head.appendChild(s);})();</script>`
+}
+
+// fromCausal reports whether x is a result of package causal (its views live
+// in widgets, which knows every result type).
+func fromCausal(x any) bool {
+	t := reflect.TypeOf(x)
+	if t == nil {
+		return false
+	}
+	for t.Kind() == reflect.Pointer {
+		t = t.Elem()
+	}
+	return t.PkgPath() == "github.com/counterpartlab/counterpart/causal"
 }

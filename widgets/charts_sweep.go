@@ -1,12 +1,14 @@
 package widgets
 
 import (
+	"encoding/json"
 	"errors"
 	"fmt"
 	"html/template"
 	"math"
 	"strings"
 
+	"github.com/counterpartlab/counterpart/causal"
 	"github.com/go-echarts/go-echarts/v2/charts"
 	"github.com/go-echarts/go-echarts/v2/opts"
 )
@@ -240,4 +242,88 @@ func sweepChart(d sweepData) (Chart, error) {
 	}
 	return Chart{Title: d.Title, Option: option, Fallback: png, Width: chartWidthPixels, Height: height, Script: script,
 		Controls: template.HTML(controls.String())}, nil
+}
+
+// TrimmingSweep draws a trimming sweep: the estimate with its 95% band
+// against the trimming threshold α, the optimal α of Crump, Hotz, Imbens &
+// Mitnik (2009) marked, and a slider under the chart that moves a marker
+// along the curve and shows, for that α, the units kept and the largest
+// |SMD| after weighting. Everything the slider shows is precomputed in the
+// page, so it works in a saved notebook or an exported HTML file.
+func TrimmingSweep(s *causal.Sweep) (Chart, error) {
+	d, err := sweepOf(s)
+	if err != nil {
+		return Chart{}, err
+	}
+	c, err := sweepChart(d)
+	if err != nil {
+		return Chart{}, err
+	}
+	if opt := optimalIndex(s); opt >= 0 {
+		// Mark the grid α nearest the optimal one.
+		var obj map[string]any
+		if err := json.Unmarshal(c.Option, &obj); err == nil {
+			patchList(obj, "series", func(m map[string]any) {
+				if m["name"] == d.Estimator {
+					m["markLine"] = map[string]any{
+						"symbol": []string{"none", "none"}, "silent": true,
+						"lineStyle": map[string]any{"color": ColorMuted, "type": "dashed", "width": 1},
+						"label":     map[string]any{"formatter": "optimal α ≈ " + formatFixed(s.Optimal, 3), "color": ColorMuted, "position": "end"},
+						"data":      []any{map[string]any{"xAxis": opt}},
+					}
+				}
+			})
+			if b, err := json.Marshal(obj); err == nil {
+				c.Option = b
+			}
+		}
+	}
+	return c, nil
+}
+
+// optimalIndex is the grid row nearest the optimal α, or −1 when trimming
+// is not advised or the optimum lies outside the grid.
+func optimalIndex(s *causal.Sweep) int {
+	if s.Optimal <= 0 || len(s.Rows) == 0 || s.Optimal > s.Rows[len(s.Rows)-1].Alpha+1e-9 {
+		return -1
+	}
+	best, gap := -1, math.Inf(1)
+	for i, r := range s.Rows {
+		if g := math.Abs(r.Alpha - s.Optimal); g < gap {
+			best, gap = i, g
+		}
+	}
+	return best
+}
+
+func sweepOf(s *causal.Sweep) (sweepData, error) {
+	if err := s.Err(); err != nil {
+		return sweepData{}, err
+	}
+	if len(s.Rows) == 0 {
+		return sweepData{}, errors.New("the trimming sweep has no thresholds")
+	}
+	r0 := s.Rows[0]
+	d := sweepData{
+		Title:     "Trimming sweep: " + estimatorName(s.Estimator) + ", " + s.Estimand.String(),
+		Estimand:  s.Estimand.String(),
+		Estimator: estimatorName(s.Estimator),
+		SMDLabel:  "after " + s.Estimand.String() + " weighting",
+		Total:     r0.KeptTreated + r0.KeptControl + r0.DroppedTreated + r0.DroppedControl,
+	}
+	for _, r := range s.Rows {
+		d.Points = append(d.Points, sweepPoint{Alpha: r.Alpha, Estimate: r.Value, Lo: r.CI95.Lo, Hi: r.CI95.Hi,
+			Kept: r.KeptTreated + r.KeptControl, KeptTreated: r.KeptTreated, KeptControl: r.KeptControl, MaxSMD: r.MaxAbsSMD, Failed: r.Err})
+	}
+	if opt := optimalIndex(s); opt >= 0 && finite(d.Points[opt].Estimate) {
+		d.Default = opt
+	} else {
+		for i, p := range d.Points {
+			if finite(p.Estimate) {
+				d.Default = i
+				break
+			}
+		}
+	}
+	return d, nil
 }

@@ -34,6 +34,13 @@ var chartBuilders = []builtChart{
 	{"EstimatesChartTrimmed", func(r resultSet) (Chart, error) { return EstimatesChart(r.TrimmedEs) }},
 	{"TrimmedHistogram", func(r resultSet) (Chart, error) { return TrimmedHistogram(r.Trimmed) }},
 	{"BootstrapHistogram", func(r resultSet) (Chart, error) { return BootstrapHistogram(r.Bootstrap) }},
+	{"TrimmingSweep", func(r resultSet) (Chart, error) { return TrimmingSweep(r.Sweep) }},
+}
+
+// curveBuilders need outcome models that can be fitted (not the water
+// scenario, where no audit reaches the harbour district).
+var curveBuilders = []builtChart{
+	{"ExtrapolationPlot", func(r resultSet) (Chart, error) { return ExtrapolationPlot(r.Curve) }},
 }
 
 // checkOption decodes an option and checks that every series carries data.
@@ -288,7 +295,7 @@ func TestChartScriptsParse(t *testing.T) {
 	r := resultsOf(t, hostileStudy(t), hostileColumn, "g", "b")
 	dir := t.TempDir()
 	re := regexp.MustCompile(`(?s)<script>(.*?)</script>`)
-	for _, b := range chartBuilders {
+	for _, b := range append(chartBuilders, curveBuilders...) {
 		c, err := b.build(r)
 		if err != nil {
 			t.Fatalf("%s: %v", b.name, err)
@@ -322,4 +329,89 @@ func TestChartBuildersRefuseBrokenResults(t *testing.T) {
 			t.Errorf("%s: error %v should name the missing file", name, err)
 		}
 	}
+}
+
+// TestExtrapolationPlot draws the scenario made for it: arms 2.5 standard
+// deviations apart, so each arm's outcome line runs, at the far ends, where
+// the arm has no units. Those regions must be shaded and the lines dashed
+// there, and the shaded regions must be the curve's own empty bins.
+func TestExtrapolationPlot(t *testing.T) {
+	s := extrapolationStudy(t, 2000)
+	a := s.Propensity().Extrapolation(causal.ATE)
+	if err := a.Err(); err != nil {
+		t.Fatal(err)
+	}
+	cur := a.Curve("x")
+	if err := cur.Err(); err != nil {
+		t.Fatal(err)
+	}
+	if len(cur.Unsupported1) == 0 || len(cur.Unsupported0) == 0 {
+		t.Fatalf("the scenario should leave each arm without units somewhere: %v %v", cur.Unsupported1, cur.Unsupported0)
+	}
+	c, err := ExtrapolationPlot(cur)
+	if err != nil {
+		t.Fatal(err)
+	}
+	obj := checkOption(t, "ExtrapolationPlot", c.Option)
+	checkFallback(t, "ExtrapolationPlot", c.Fallback)
+	var shaded, dashed int
+	for _, sr := range obj["series"].([]any) {
+		m := sr.(map[string]any)
+		if ma, ok := m["markArea"].(map[string]any); ok {
+			shaded += len(ma["data"].([]any))
+		}
+		if ls, ok := m["lineStyle"].(map[string]any); ok && ls["type"] == "dashed" {
+			dashed++
+			if !strings.Contains(m["name"].(string), "extrapolated") {
+				t.Errorf("dashed series %q should say it is extrapolated", m["name"])
+			}
+		}
+	}
+	if want := len(cur.Unsupported1) + len(cur.Unsupported0); shaded != want {
+		t.Errorf("%d shaded regions, the curve has %d without an arm", shaded, want)
+	}
+	if dashed != 2 {
+		t.Errorf("%d dashed lines, want one per arm", dashed)
+	}
+	h := HTML(a)
+	for _, want := range []string{"rests on extrapolation", "f1", "f0", "Where predictions leave"} {
+		if !strings.Contains(h, want) {
+			t.Errorf("audit view lacks %q", want)
+		}
+	}
+	if !strings.Contains(Headline(cur), "no treated units on") {
+		t.Errorf("curve headline %q", Headline(cur))
+	}
+}
+
+// TestTrimmingSweepMatchesDirectTrimming checks the sweep chart against
+// trimming and estimating directly at each α (Scores.Trim, Trimmed.Effect),
+// and that the slider shows those numbers.
+func TestTrimmingSweepMatchesDirectTrimming(t *testing.T) {
+	sc := waterStudy().Propensity()
+	alphas := []float64{0, 0.02, 0.05, 0.1, 0.15}
+	sw := sc.Sweep(causal.IPWNormalized, causal.ATE, alphas...)
+	if err := sw.Err(); err != nil {
+		t.Fatal(err)
+	}
+	d, err := sweepOf(sw)
+	if err != nil {
+		t.Fatal(err)
+	}
+	direct := sweepByTrimming(t, sc, causal.IPWNormalized, causal.ATE, alphas)
+	for i := range alphas {
+		got, want := d.Points[i], direct.Points[i]
+		if got.Kept != want.Kept || got.KeptTreated != want.KeptTreated || math.Abs(got.Estimate-want.Estimate) > 1e-9 {
+			t.Errorf("α %g: sweep kept %d (%d treated), estimate %g; direct %d (%d), %g", alphas[i], got.Kept, got.KeptTreated, got.Estimate, want.Kept, want.KeptTreated, want.Estimate)
+		}
+	}
+	c, err := TrimmingSweep(sw)
+	if err != nil {
+		t.Fatal(err)
+	}
+	checkOption(t, "TrimmingSweep", c.Option)
+	if opt := optimalIndex(sw); opt >= 0 && !strings.Contains(string(c.Option), "optimal α") {
+		t.Error("the optimal α is not marked")
+	}
+	checkSlider(t, c, d)
 }

@@ -9,11 +9,14 @@ package widgets
 import (
 	"bytes"
 	"fmt"
+	"image"
 	"image/color"
 	"image/png"
 	"math"
+	"sort"
 	"strconv"
 
+	"github.com/counterpartlab/counterpart/causal"
 	xfont "golang.org/x/image/font"
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/font"
@@ -112,10 +115,60 @@ func renderPNG(p *plot.Plot, h int) ([]byte, error) {
 	p.Draw(draw.New(c))
 	var buf bytes.Buffer
 	enc := png.Encoder{CompressionLevel: png.BestCompression}
-	if err := enc.Encode(&buf, c.Image()); err != nil {
+	if err := enc.Encode(&buf, paletted(c.Image())); err != nil {
 		return nil, fmt.Errorf("encoding the static picture: %w", err)
 	}
 	return buf.Bytes(), nil
+}
+
+// paletted converts a picture to at most 256 colours: the most frequent
+// ones, every other pixel mapped to its nearest (color.Palette.Index). A
+// chart has a few flat colours and their antialiased edges, so the picture
+// looks the same and its PNG is a fraction of the size.
+func paletted(img image.Image) image.Image {
+	b := img.Bounds()
+	freq := map[color.RGBA]int{}
+	for y := b.Min.Y; y < b.Max.Y; y++ {
+		for x := b.Min.X; x < b.Max.X; x++ {
+			freq[color.RGBAModel.Convert(img.At(x, y)).(color.RGBA)]++
+		}
+	}
+	type cf struct {
+		c color.RGBA
+		n int
+	}
+	all := make([]cf, 0, len(freq))
+	for c, n := range freq {
+		all = append(all, cf{c, n})
+	}
+	sort.Slice(all, func(i, j int) bool {
+		if all[i].n != all[j].n {
+			return all[i].n > all[j].n
+		}
+		a, c := all[i].c, all[j].c
+		return uint32(a.R)<<24|uint32(a.G)<<16|uint32(a.B)<<8|uint32(a.A) < uint32(c.R)<<24|uint32(c.G)<<16|uint32(c.B)<<8|uint32(c.A)
+	})
+	if len(all) > 256 {
+		all = all[:256]
+	}
+	pal := make(color.Palette, len(all))
+	for i, e := range all {
+		pal[i] = e.c
+	}
+	out := image.NewPaletted(b, pal)
+	index := make(map[color.RGBA]uint8, len(freq))
+	for y := b.Min.Y; y < b.Max.Y; y++ {
+		for x := b.Min.X; x < b.Max.X; x++ {
+			c := color.RGBAModel.Convert(img.At(x, y)).(color.RGBA)
+			k, ok := index[c]
+			if !ok {
+				k = uint8(pal.Index(c))
+				index[c] = k
+			}
+			out.SetColorIndex(x, y, k)
+		}
+	}
+	return out
 }
 
 // rect is an axis-aligned rectangle in data coordinates.
@@ -662,5 +715,88 @@ func staticSweep(d sweepData, height int) ([]byte, error) {
 		p.Legend.Add("selected α = "+formatFixed(def.Alpha, 3), s)
 	}
 	p.X.Min, p.X.Max = d.Points[0].Alpha, d.Points[len(d.Points)-1].Alpha
+	return renderPNG(p, height)
+}
+
+// staticExtrapolation draws the fitted lines over the observed points,
+// with the regions an arm lacks shaded and its line dashed there.
+func staticExtrapolation(d extrapData, height int) ([]byte, error) {
+	p := newPlot(shorten(d.Covariate), "outcome")
+	addGrid(p, false, true)
+	var shades []plotter.XYs
+	for _, ivs := range [][]causal.Interval{d.NoTreated, d.NoCtrl} {
+		for _, iv := range ivs {
+			shades = append(shades, rect(iv.Lo, iv.Hi, d.YMin, d.YMax))
+		}
+	}
+	if len(shades) > 0 {
+		sp, err := filledRects(shades, noSuppRGB, nil)
+		if err != nil {
+			return nil, err
+		}
+		p.Add(sp)
+		p.Legend.Add("an arm has no units", sp)
+	}
+	for _, arm := range []struct {
+		name string
+		pts  []causal.CurvePoint
+		c    color.NRGBA
+	}{{"treated units", d.T, treatedRGB}, {"control units", d.C, controlRGB}} {
+		if len(arm.pts) == 0 {
+			continue
+		}
+		xy := make(plotter.XYs, len(arm.pts))
+		for i, q := range arm.pts {
+			xy[i] = plotter.XY{X: q.X, Y: q.Y}
+		}
+		s, err := plotter.NewScatter(xy)
+		if err != nil {
+			return nil, err
+		}
+		s.GlyphStyle = draw.GlyphStyle{Color: withAlpha(arm.c, 110), Radius: vg.Points(1.6), Shape: draw.CircleGlyph{}}
+		p.Add(s)
+		p.Legend.Add(arm.name, s)
+	}
+	for _, fit := range []struct {
+		name string
+		f    []float64
+		sup  []bool
+		c    color.NRGBA
+	}{{"f1 (fitted on treated)", d.F1, d.Sup1, treatedRGB}, {"f0 (fitted on controls)", d.F0, d.Sup0, controlRGB}} {
+		// Runs of supported (solid) and unsupported (dashed) grid points,
+		// each run sharing its end point with the next.
+		start := 0
+		first := true
+		for i := 1; i <= len(d.X); i++ {
+			if i < len(d.X) && fit.sup[i] == fit.sup[start] {
+				continue
+			}
+			end := min(i, len(d.X)-1)
+			pts := make(plotter.XYs, 0, end-start+1)
+			for k := start; k <= end; k++ {
+				pts = append(pts, plotter.XY{X: d.X[k], Y: fit.f[k]})
+			}
+			var dashes []vg.Length
+			w := vg.Points(2.4)
+			if !fit.sup[start] {
+				dashes, w = []vg.Length{vg.Points(5), vg.Points(3)}, vg.Points(1.6)
+			}
+			if len(pts) > 1 {
+				l, err := line(pts, fit.c, w, dashes...)
+				if err != nil {
+					return nil, err
+				}
+				p.Add(l)
+				if first && fit.sup[start] {
+					p.Legend.Add(fit.name, l)
+					first = false
+				}
+			}
+			start = i
+		}
+	}
+	p.X.Min, p.X.Max = d.X[0], d.X[len(d.X)-1]
+	p.Y.Min, p.Y.Max = d.YMin, d.YMax
+	p.Legend.Left = true
 	return renderPNG(p, height)
 }

@@ -721,3 +721,93 @@ func bootstrapTable(b *causal.Bootstrap) table {
 	tb.Note = strings.Join(notes, " ")
 	return tb
 }
+
+// sweepTable lists a trimming sweep, one row per α.
+func sweepTable(s *causal.Sweep) table {
+	t := table{
+		Caption: "Trimming sweep: " + estimatorName(s.Estimator) + ", " + s.Estimand.String() + " (each α is a different population)",
+		Head: []tableCell{headNum("α"), headNum("treated kept"), headNum("controls kept"), headNum("estimate"), headNum("SE"),
+			headNum("95% interval"), tableCell{Text: "largest |SMD|", Num: true, Hint: "after " + s.Estimand.String() + " weighting of the kept units"},
+			headNum("ESS treated"), headNum("ESS control"), headText("status")},
+	}
+	opt := optimalIndex(s)
+	for i, r := range s.Rows {
+		if i == maxTableRows {
+			break
+		}
+		status := flagCell("", tonePlain)
+		switch {
+		case r.Err != "" && !finite(r.Value):
+			status = flagCell("not estimated: "+r.Err, toneBad)
+		case !r.Supported:
+			status = flagCell("not supported by the data", toneBad)
+		case i == opt:
+			status = flagCell("nearest the optimal α", toneGood)
+		}
+		smd := numCell(smdText(r.MaxAbsSMD))
+		if finite(r.MaxAbsSMD) && r.MaxAbsSMD > smdReference {
+			smd.Tone = toneWarn
+		}
+		ess := func(v float64) tableCell {
+			if !finite(v) {
+				return numCell("—")
+			}
+			return numCell(formatCount(int(math.Round(v))))
+		}
+		t.Rows = append(t.Rows, tableRow{Flagged: i == opt, Cells: []tableCell{numCell(formatFixed(r.Alpha, 3)),
+			numCell(formatCount(r.KeptTreated)), numCell(formatCount(r.KeptControl)), numCell(formatNumber(r.Value)),
+			numCell(formatNumber(r.SE)), numCell(intervalText(r.CI95)), smd, ess(r.ESSTreated), ess(r.ESSControl), status}})
+	}
+	t.Note = moreRows(min(len(s.Rows), maxTableRows), len(s.Rows), "thresholds")
+	if s.Optimal > 0 {
+		t.Note = strings.TrimSpace("Optimal α for these scores (Crump, Hotz, Imbens & Mitnik 2009): " + formatFixed(s.Optimal, 3) + ". " + t.Note)
+	} else {
+		t.Note = strings.TrimSpace("The rule of Crump, Hotz, Imbens & Mitnik (2009) advises no trimming for these scores. " + t.Note)
+	}
+	return t
+}
+
+// extrapolationTable summarises the audit of each outcome model.
+func extrapolationTable(a *causal.ExtrapolationAudit) table {
+	t := table{
+		Caption: "Counterfactual predictions of regression adjustment (" + a.Estimand.String() + ")",
+		Head: []tableCell{headText("model"), headText("fitted on"), headNum("units fitted"), headNum("predictions"),
+			headNum("outside the arm's ranges"), headNum("leverage above the arm's maximum"), headNum("unsupported"), headNum("share")},
+	}
+	for _, m := range a.Models {
+		share := numCell(formatPercent(m.Share))
+		if m.Share > 0.05 {
+			share.Tone = toneBad
+		}
+		if m.Predictions == 0 {
+			share = numCell("—")
+		}
+		t.Rows = append(t.Rows, tableRow{Flagged: m.Unsupported > 0, Cells: []tableCell{textCell(m.Model), textCell(m.Arm + " units"),
+			numCell(formatCount(m.FitN)), numCell(formatCount(m.Predictions)), numCell(formatCount(m.OutsideRange)),
+			numCell(formatCount(m.HighLeverage)), numCell(formatCount(m.Unsupported)), share}})
+	}
+	return t
+}
+
+// termRangesTable lists the design terms on which predictions leave the
+// fitting arm's range.
+func termRangesTable(a *causal.ExtrapolationAudit) table {
+	t := table{
+		Caption: "Where predictions leave the fitting arm's range",
+		Head:    []tableCell{headText("model"), headText("term"), headNum("arm's range"), headNum("predictions below"), headNum("predictions above")},
+	}
+	for _, m := range a.Models {
+		for _, r := range m.Terms {
+			if r.Below+r.Above == 0 || len(t.Rows) == maxTableRows {
+				continue
+			}
+			rng := "[" + formatNumber(r.Lo) + ", " + formatNumber(r.Hi) + "]"
+			if r.Binary && r.Lo == r.Hi {
+				rng = "always " + formatNumber(r.Lo)
+			}
+			t.Rows = append(t.Rows, tableRow{Cells: []tableCell{textCell(m.Model), textCell(r.Term), numCell(rng),
+				numCell(formatCount(r.Below)), numCell(formatCount(r.Above))}})
+		}
+	}
+	return t
+}

@@ -23,6 +23,7 @@ type Viewer interface {
 // what to fix. Supported: *causal.Scores, *causal.Support, *causal.Cells,
 // *causal.Erosion, *causal.BalanceSheet, *causal.Verdict, *causal.Weights,
 // *causal.Effect, *causal.Estimates, *causal.Trimmed, *causal.Bootstrap,
+// *causal.Sweep, *causal.ExtrapolationAudit, *causal.ExtrapolationCurve,
 // and errors; any
 // other value with HTML and String methods is passed through, and anything
 // else is shown as escaped text.
@@ -107,6 +108,12 @@ func (v resultView) HTML() (out string) {
 		return compose("trimmed", headline(x), trimmedParts(x))
 	case *causal.Bootstrap:
 		return compose("bootstrap", headline(x), bootstrapParts(x))
+	case *causal.Sweep:
+		return compose("sweep", headline(x), sweepParts(x))
+	case *causal.ExtrapolationAudit:
+		return compose("extrapolation", headline(x), extrapolationParts(x))
+	case *causal.ExtrapolationCurve:
+		return compose("extrapolation-curve", headline(x), curveParts(x))
 	case Viewer:
 		return x.HTML()
 	case interface{ HTML() string }:
@@ -266,8 +273,161 @@ func typeHeadline(x any) string {
 		return trimmedHeadline(v)
 	case *causal.Bootstrap:
 		return bootstrapHeadline(v)
+	case *causal.Sweep:
+		return sweepHeadline(v)
+	case *causal.ExtrapolationAudit:
+		return extrapolationHeadline(v)
+	case *causal.ExtrapolationCurve:
+		return curveHeadline(v)
 	}
 	return ""
+}
+
+func sweepParts(s *causal.Sweep) []string {
+	return []string{
+		chartPart(TrimmingSweep(s)),
+		notePart("Move the slider to see, for each α, the units kept and the largest |SMD| after weighting; the marker follows on the curve. Each α is a different population: a flat curve says the estimate does not hinge on the units at the edges of the score range."),
+		sweepTable(s).HTML(),
+		cautionsHTML(),
+	}
+}
+
+// curveCovariate picks the numeric covariate to draw for an audit: the
+// non-binary term on which most predictions leave the fitting arm's range,
+// else the first non-binary term.
+func curveCovariate(a *causal.ExtrapolationAudit) string {
+	best, most := "", -1
+	for _, m := range a.Models {
+		for _, r := range m.Terms {
+			if r.Binary || strings.Contains(r.Term, "=") {
+				continue
+			}
+			if n := r.Below + r.Above; n > most {
+				best, most = r.Term, n
+			}
+		}
+	}
+	return best
+}
+
+func extrapolationParts(a *causal.ExtrapolationAudit) []string {
+	var parts []string
+	if cov := curveCovariate(a); cov != "" {
+		c := a.Curve(cov)
+		if c.Err() == nil {
+			parts = append(parts, chartPart(ExtrapolationPlot(c)), notePart(heldNote(c)))
+		}
+	}
+	parts = append(parts, extrapolationTable(a).HTML())
+	if tr := termRangesTable(a); len(tr.Rows) > 0 {
+		parts = append(parts, tr.HTML())
+	}
+	var effects []*causal.Effect
+	for _, e := range []*causal.Effect{a.Full, a.Restricted} {
+		if e != nil {
+			effects = append(effects, e)
+		}
+	}
+	if len(effects) > 0 {
+		parts = append(parts, estimatesTable(effects, "Regression adjustment over all target units, and over those whose predictions are supported").HTML(),
+			flagsHTML(estimateErrors(effects), nil))
+	}
+	return append(parts, cautionsHTML())
+}
+
+func curveParts(c *causal.ExtrapolationCurve) []string {
+	return []string{chartPart(ExtrapolationPlot(c)), notePart(heldNote(c))}
+}
+
+// heldNote says what the other terms are held at along the curve.
+func heldNote(c *causal.ExtrapolationCurve) string {
+	var held []string
+	for i, h := range c.Held {
+		if i == 8 {
+			held = append(held, fmt.Sprintf("and %d more", len(c.Held)-8))
+			break
+		}
+		held = append(held, h.Term+" = "+formatNumber(h.Value))
+	}
+	s := fmt.Sprintf("Points: %s of %s treated and %s of %s control units (an even subsample when there are more).",
+		formatCount(len(c.Treated)), formatCount(c.TreatedTotal), formatCount(len(c.Control)), formatCount(c.ControlTotal))
+	if len(held) > 0 {
+		s += " The lines hold the other terms at " + strings.Join(held, ", ") + " (numeric terms at their mean, category levels at the reference)."
+	}
+	return s
+}
+
+func sweepHeadline(s *causal.Sweep) string {
+	first, last := -1, -1
+	for i, r := range s.Rows {
+		if finite(r.Value) {
+			if first < 0 {
+				first = i
+			}
+			last = i
+		}
+	}
+	if first < 0 {
+		return "No threshold of the sweep gives an estimate: see the table for why."
+	}
+	a, b := s.Rows[first], s.Rows[last]
+	head := fmt.Sprintf("As α rises from %s to %s the %s estimate moves from %s to %s while the units kept fall from %s to %s",
+		formatFixed(a.Alpha, 2), formatFixed(b.Alpha, 2), s.Estimand, formatNumber(a.Value), formatNumber(b.Value),
+		formatCount(a.KeptTreated+a.KeptControl), formatCount(b.KeptTreated+b.KeptControl))
+	if s.Optimal > 0 {
+		head += fmt.Sprintf("; the optimal α of Crump et al. (2009) is %s", formatFixed(s.Optimal, 3))
+	} else {
+		head += "; the rule of Crump et al. (2009) advises no trimming"
+	}
+	return head + "."
+}
+
+func extrapolationHeadline(a *causal.ExtrapolationAudit) string {
+	var parts []string
+	for _, m := range a.Models {
+		if m.Predictions == 0 {
+			continue
+		}
+		what := "Y(1)"
+		if m.Model == "f0" {
+			what = "Y(0)"
+		}
+		parts = append(parts, fmt.Sprintf("%s of its %s predictions of %s (%s) leave the %s units' data", formatCount(m.Unsupported),
+			formatCount(m.Predictions), what, formatPercent(m.Share), m.Arm))
+	}
+	if len(parts) == 0 {
+		return "Regression adjustment makes no counterfactual prediction for the " + a.Estimand.String() + "."
+	}
+	head := "Regression adjustment of the " + a.Estimand.String() + ": " + strings.Join(parts, "; ")
+	unsup := a.TargetN - a.SupportedN
+	if unsup == 0 {
+		return head + ": no prediction rests on extrapolation."
+	}
+	head += fmt.Sprintf(". For %s of %s target units the estimate rests on extrapolation", formatCount(unsup), formatCount(a.TargetN))
+	if a.Full != nil && a.Full.Err() == nil && a.Restricted != nil && a.Restricted.Err() == nil {
+		head += fmt.Sprintf("; over the supported units alone it is %s instead of %s (a different population)", formatNumber(a.Restricted.Value), formatNumber(a.Full.Value))
+	}
+	return head + "."
+}
+
+func curveHeadline(c *causal.ExtrapolationCurve) string {
+	ivs := func(v []causal.Interval) string {
+		var s []string
+		for _, iv := range v {
+			s = append(s, "["+formatNumber(iv.Lo)+", "+formatNumber(iv.Hi)+"]")
+		}
+		return strings.Join(s, ", ")
+	}
+	switch {
+	case len(c.Unsupported1) == 0 && len(c.Unsupported0) == 0:
+		return "Both arms have units across the range of " + c.Covariate + ": neither outcome model extrapolates along it."
+	case len(c.Unsupported0) == 0:
+		return "Along " + c.Covariate + " there are no treated units on " + ivs(c.Unsupported1) + ": there f1 (fitted on the treated) is extrapolation."
+	case len(c.Unsupported1) == 0:
+		return "Along " + c.Covariate + " there are no controls on " + ivs(c.Unsupported0) + ": there f0 (fitted on the controls) is extrapolation."
+	}
+	return "Along " + c.Covariate + " there are no treated units on " + ivs(c.Unsupported1) + " and no controls on " + ivs(c.Unsupported0) +
+		": there the fitted lines are extrapolation."
 }
 
 func effectParts(e *causal.Effect) []string {

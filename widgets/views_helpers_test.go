@@ -8,6 +8,7 @@ import (
 	"testing"
 
 	"github.com/counterpartlab/counterpart/causal"
+	"github.com/counterpartlab/counterpart/causal/scenario"
 )
 
 // The hostile labels of the escaping tests: a column name that is an HTML
@@ -74,14 +75,21 @@ type resultSet struct {
 	Trimmed   *causal.Trimmed
 	TrimmedEs *causal.Estimates
 	Bootstrap *causal.Bootstrap
+	Sweep     *causal.Sweep
+	Audit     *causal.ExtrapolationAudit
+	Curve     *causal.ExtrapolationCurve
 }
 
 func (r resultSet) all() []any {
 	return []any{r.Scores, r.Support, r.Cells2, r.Cells3, r.Erosion, r.Balance, r.Weighted, r.Weights, r.Verdict,
-		r.Effect, r.Estimates, r.Trimmed, r.TrimmedEs, r.Bootstrap}
+		r.Effect, r.Estimates, r.Trimmed, r.TrimmedEs, r.Bootstrap, r.Sweep, r.Audit, r.Curve}
 }
 
-func resultsOf(t testing.TB, s *causal.Study, c1, c2, c3 string) resultSet {
+// resultsOf computes every result of s: c1 and c2 are the covariates of
+// the two-way positivity table (c1 numeric, drawn as the extrapolation
+// curve when the outcome models can be fitted), c3 a third; alphas is the
+// sweep's grid (nil for the default).
+func resultsOf(t testing.TB, s *causal.Study, c1, c2, c3 string, alphas ...float64) resultSet {
 	t.Helper()
 	sc := s.Propensity()
 	if err := sc.Err(); err != nil {
@@ -95,7 +103,13 @@ func resultsOf(t testing.TB, s *causal.Study, c1, c2, c3 string) resultSet {
 	r.Trimmed = sc.Trim(causal.Symmetric(0.05))
 	r.TrimmedEs = r.Trimmed.Effects(causal.ATE)
 	r.Bootstrap = sc.Bootstrap(context.Background(), causal.IPWNormalized, causal.ATE, causal.BootstrapOptions{Replicates: 12, Seed: 5})
+	r.Sweep = sc.Sweep(causal.IPWNormalized, causal.ATE, alphas...)
+	r.Audit = sc.Extrapolation(causal.ATE)
+	r.Curve = r.Audit.Curve(c1)
 	for _, x := range r.all() {
+		if x == any(r.Audit) || x == any(r.Curve) {
+			continue // regression adjustment can fail where positivity does (checked where it matters)
+		}
 		if err := resultErr(x); err != nil {
 			t.Fatalf("%T: %v", x, err)
 		}
@@ -118,10 +132,25 @@ func millionResults(t testing.TB) resultSet {
 	millionOnce.Do(func() {
 		f := syntheticFrame(t, 1_000_000, 11, "x", "west")
 		s := causal.FromSource(f).Treat("t").Outcome("y").Adjust("x", "g", "b")
-		million = resultsOf(t, s, "x", "g", "b")
+		million = resultsOf(t, s, "x", "g", "b", 0, 0.05, 0.1)
 	})
 	if million.Scores == nil {
 		t.Fatal("the 1e6-row study could not be built (see the first failure)")
 	}
 	return million
+}
+
+// extrapolationStudy is the scenario built to show extrapolation: one
+// covariate, arms two standard deviations apart, a curved outcome.
+func extrapolationStudy(t testing.TB, n int) *causal.Study {
+	t.Helper()
+	d, err := scenario.Extrapolation(3, n, 2.5)
+	if err != nil {
+		t.Fatal(err)
+	}
+	f, err := causal.NewFrame(d.Names, d.Num, d.Str)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return causal.FromSource(f).Treat("t").Outcome("y").Adjust("x")
 }

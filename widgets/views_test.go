@@ -83,7 +83,7 @@ func TestViewIDsUnique(t *testing.T) {
 func TestPayloadBoundedAtOneMillion(t *testing.T) {
 	r := millionResults(t)
 	const limit = 100 * 1024
-	for _, b := range chartBuilders {
+	for _, b := range append(chartBuilders, curveBuilders...) {
 		c, err := b.build(r)
 		if err != nil {
 			t.Fatalf("%s: %v", b.name, err)

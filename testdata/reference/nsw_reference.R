@@ -4,6 +4,7 @@
 # Run from the repository root:
 #   Rscript testdata/reference/nsw_reference.R
 # Reads   testdata/nsw_dehejia_wahba.csv
+# Reads   testdata/water_audits.csv (section 7, trimming; our own simulated scenario)
 # Writes  testdata/reference/nsw_schooling.csv   (NSW data plus a derived string column `schooling`)
 #         testdata/reference/separation.csv      (small seeded data set with quasi-complete separation)
 #         testdata/reference/nsw_reference.json  (all reference values; numbers printed with 17 significant digits)
@@ -394,6 +395,101 @@ cfsub <- summary(fit_sub)$coefficients
 sep_terms <- c("(intercept)", "x1", "gate")
 
 # ---------------------------------------------------------------------------------------------
+# 7. Trimming by propensity scores, on the simulated water-audit scenario (testdata/water_audits.csv,
+#    our own seeded scenario; see testdata/README.md), where scores reach 0.99 and trimming matters.
+#    Model without `district` (whose harbour level is never audited: separation, not needed here).
+#    pool is a factor with reference level "no", the most frequent level (as the Go code chooses).
+# ---------------------------------------------------------------------------------------------
+wa <- read.csv("testdata/water_audits.csv", stringsAsFactors = FALSE)
+stopifnot(nrow(wa) == 4000, sum(wa$pool == "no") > sum(wa$pool == "yes"))
+wa$treat <- as.numeric(wa$audit == "yes")
+wa$pool <- factor(wa$pool, levels = c("no", "yes"))
+wcovs <- c("household_size", "lot_m2", "home_age", "pool", "last_summer_lpd")
+wfml <- treat ~ household_size + lot_m2 + home_age + pool + last_summer_lpd
+wofml <- litres_per_day ~ household_size + lot_m2 + home_age + pool + last_summer_lpd
+# A tight tolerance so the fitted scores are the maximum-likelihood ones to ~1e-13.
+wctl <- glm.control(epsilon = 1e-14, maxit = 100)
+wfit <- glm(wfml, family = binomial, data = wa, control = wctl)
+stopifnot(wfit$converged)
+ew <- as.numeric(fitted(wfit))
+Tw <- wa$treat
+
+# Crump, Hotz, Imbens & Mitnik (2009): gamma = 1/(e(1-e)). No trimming if max gamma <= 2 mean gamma;
+# otherwise alpha = 1/2 - sqrt(1/4 - 1/c) where c solves c = 2 E[gamma | gamma <= c]. Empirically, with the
+# gammas sorted and m_k the mean of the k smallest, the right side is 2 m_k on [g_(k), g_(k+1)), so the
+# root is c = 2 m_k for the k with g_(k) <= 2 m_k < g_(k+1). It is checked to be unique here and to be
+# the k that minimises (sum of the k smallest gammas) / k^2, the empirical asymptotic variance
+# E[gamma 1(gamma <= c)] / P(gamma <= c)^2 whose first-order condition the equation is.
+crump <- function(e) {
+  g <- 1 / (e * (1 - e))
+  if (max(g) <= 2 * mean(g)) return(list(alpha = 0, c = Inf, k = length(g)))
+  gs <- sort(g)
+  k <- seq_along(gs)
+  m <- cumsum(gs) / k
+  roots <- which(gs <= 2 * m & c(gs[-1], Inf) > 2 * m)
+  stopifnot(length(roots) == 1, which.min(cumsum(gs) / k^2) == roots)
+  cc <- 2 * m[roots]
+  list(alpha = 0.5 - sqrt(0.25 - 1 / cc), c = cc, k = roots)
+}
+cr <- crump(ew)
+stopifnot(cr$alpha > 0)
+cr_nsw <- crump(e)                          # the randomised NSW sample: no trimming advised
+stopifnot(cr_nsw$alpha == 0)
+kept_counts <- function(keep) list(kept_treated = sum(keep & Tw == 1), kept_control = sum(keep & Tw == 0))
+
+# Sturmer, Rothman, Avorn & Glynn (2010): keep e >= q_lo of the treated scores and e <= q_hi of the
+# control scores; quantiles of type 7 (R's default, linear interpolation).
+q5 <- unname(quantile(ew[Tw == 1], 0.05, type = 7))
+q95 <- unname(quantile(ew[Tw == 0], 0.95, type = 7))
+keep_pct <- ew >= q5 & ew <= q95
+
+# Symmetric trimming at alpha = 0.1 (keep 0.1 <= e <= 0.9), then everything refitted on the kept units:
+# propensity glm, outcome lm per arm, and the estimators of section 5 with the same formulas, the
+# sandwich here built as the explicit stacked matrices A and B (no shortcut).
+keep10 <- ew >= 0.1 & ew <= 0.9
+wk <- wa[keep10, ]
+fk <- glm(wfml, family = binomial, data = wk, control = wctl)
+stopifnot(fk$converged)
+ek <- as.numeric(fitted(fk))
+Tk <- wk$treat; yk <- wk$litres_per_day; Xk <- model.matrix(wfml, data = wk); nk <- nrow(wk); pk <- ncol(Xk)
+stacked_se <- function(g1, g0, c1, c0, b1, b0) {
+  # g = [x (T - e); g1; g0]; dg1/dbeta = c1 x, dg1/dmu1 = -b1 (likewise for g0).
+  G <- cbind(Xk * (Tk - ek), g1, g0)
+  B <- crossprod(G) / nk
+  A <- matrix(0, pk + 2, pk + 2)
+  A[1:pk, 1:pk] <- crossprod(Xk * (ek * (1 - ek)), Xk) / nk
+  A[pk + 1, 1:pk] <- -colSums(Xk * c1) / nk
+  A[pk + 2, 1:pk] <- -colSums(Xk * c0) / nk
+  A[pk + 1, pk + 1] <- sum(b1) / nk
+  A[pk + 2, pk + 2] <- sum(b0) / nk
+  V <- solve(A) %*% B %*% t(solve(A)) / nk
+  sqrt(V[pk + 1, pk + 1] + V[pk + 2, pk + 2] - 2 * V[pk + 1, pk + 2])
+}
+trim_est <- list()
+add_trim <- function(estimator, estimand, value, se, se_method)
+  trim_est[[length(trim_est) + 1]] <<- list(estimator = estimator, estimand = estimand, value = value, se = se, se_method = se_method)
+# ipw_normalized ATE
+a1 <- Tk / ek; a0 <- (1 - Tk) / (1 - ek)
+mu1 <- sum(a1 * yk) / sum(a1); mu0 <- sum(a0 * yk) / sum(a0)
+add_trim("ipw_normalized", "ATE", mu1 - mu0,
+         stacked_se(a1 * (yk - mu1), a0 * (yk - mu0), -Tk * (yk - mu1) * (1 - ek) / ek, (1 - Tk) * (yk - mu0) * ek / (1 - ek), a1, a0),
+         "sandwich")
+# overlap_weighted ATO
+a1 <- Tk * (1 - ek); a0 <- (1 - Tk) * ek
+mu1 <- sum(a1 * yk) / sum(a1); mu0 <- sum(a0 * yk) / sum(a0)
+add_trim("overlap_weighted", "ATO", mu1 - mu0,
+         stacked_se(a1 * (yk - mu1), a0 * (yk - mu0), -Tk * ek * (1 - ek) * (yk - mu1), (1 - Tk) * ek * (1 - ek) * (yk - mu0), a1, a0),
+         "sandwich")
+# aipw ATE and regression adjustment ATE
+g1k <- lm(wofml, data = wk[Tk == 1, ]); g0k <- lm(wofml, data = wk[Tk == 0, ])
+m1k <- as.numeric(Xk %*% coef(g1k)); m0k <- as.numeric(Xk %*% coef(g0k))
+phik <- m1k - m0k + Tk * (yk - m1k) / ek - (1 - Tk) * (yk - m0k) / (1 - ek)
+add_trim("aipw", "ATE", mean(phik), sqrt(sum((phik - mean(phik))^2)) / nk, "influence function")
+xbk <- colMeans(Xk); dbk <- coef(g1k) - coef(g0k)
+add_trim("regression_adjustment", "ATE", sum(xbk * dbk),
+         sqrt(as.numeric(t(xbk) %*% (vcov(g1k) + vcov(g0k)) %*% xbk + t(dbk) %*% cov(Xk) %*% dbk / nk)), "delta method")
+
+# ---------------------------------------------------------------------------------------------
 # JSON
 # ---------------------------------------------------------------------------------------------
 res <- list(
@@ -448,6 +544,17 @@ res <- list(
     tight_control = sep_tight,
     gate0_subset_fit = list(formula = "treat ~ x1 on rows with gate == 0", terms = arr(c("(intercept)", "x1")),
                             coef = arr(unname(cfsub[, 1])), se = arr(unname(cfsub[, 2])))
+  ),
+  trimming = list(
+    data = "testdata/water_audits.csv",
+    treatment = "audit == \"yes\"", outcome = "litres_per_day", covariates = arr(wcovs),
+    formula = paste(deparse(wfml, width.cutoff = 500L), collapse = ""),
+    glm_coef = arr(unname(coef(wfit))),
+    n = nrow(wa), n_treated = sum(Tw),
+    crump = c(list(alpha = cr$alpha, gamma_threshold = cr$c), kept_counts(ew >= cr$alpha & ew <= 1 - cr$alpha)),
+    crump_nsw_alpha = cr_nsw$alpha,
+    percentile_5_95 = c(list(lo = q5, hi = q95), kept_counts(keep_pct)),
+    symmetric_0.1 = c(kept_counts(keep10), list(refit_coef = arr(unname(coef(fk))), estimates = trim_est))
   )
 )
 writeLines(to_json(res), file.path(out_dir, "nsw_reference.json"))
@@ -460,4 +567,7 @@ cat(sprintf("AUC %.6f  deviance %.6f  null %.6f  iterations %d\n", auc, fit$devi
 for (x in estimates) cat(sprintf("%-22s %-4s %12.4f  SE %10.4f  %s\n", x$estimator, x$estimand, x$value, x$se, x$se_method))
 cat("schooling reference level:", ref_level, "\n"); print(cfc)
 cat("separation, default control: warnings:", length(sep_default$warnings$v), " gate coef", sep_default$coef$v[3], " SE", sep_default$se$v[3], "\n")
+cat(sprintf("trimming (water audits): Crump alpha %.6f keeps %d of %d; percentile [%.6f, %.6f] keeps %d\n", cr$alpha,
+            sum(ew >= cr$alpha & ew <= 1 - cr$alpha), nrow(wa), q5, q95, sum(keep_pct)))
+for (x in trim_est) cat(sprintf("  after trimming at 0.1: %-22s %-4s %12.4f  SE %10.4f\n", x$estimator, x$estimand, x$value, x$se))
 cat("separation, epsilon 1e-12: warnings:", sep_tight$warnings$v, " gate coef", sep_tight$coef$v[3], " SE", sep_tight$se$v[3], "\n")
