@@ -26,7 +26,7 @@ type BootstrapOptions struct {
 	Seed uint64
 	// Progress, when set, is called with the number of replicates finished
 	// and the total, from one goroutine at a time, in increasing order,
-	// about every 1% of the work and at the end.
+	// every 1% of the work (at most every 50 replicates) and at the end.
 	Progress func(done, total int)
 	// Workers is the number of replicates run at once (0: one per core).
 	Workers int
@@ -119,17 +119,22 @@ func (sc *Scores) Bootstrap(ctx context.Context, est Estimator, target Estimand,
 		workers = runtime.GOMAXPROCS(0)
 	}
 	workers = min(workers, o.Replicates)
-	values := make([]float64, o.Replicates)
-	state := make([]uint8, o.Replicates) // 0 not run, 1 ok, 2 failed
-	errs := make([]error, o.Replicates)
+	// Results are kept per worker (memory grows with the replicates done,
+	// not with the number requested) and put in replicate order at the end.
+	type result struct {
+		b   int
+		v   float64
+		err error
+	}
+	results := make([][]result, workers)
 	var next atomic.Int64
 	var mu sync.Mutex
 	done := 0
-	step := max(1, o.Replicates/100)
+	step := min(max(1, o.Replicates/100), 50)
 	var wg sync.WaitGroup
 	for w := 0; w < workers; w++ {
 		wg.Add(1)
-		go func() {
+		go func(w int) {
 			defer wg.Done()
 			ws := rp.workspace()
 			for {
@@ -141,11 +146,7 @@ func (sc *Scores) Bootstrap(ctx context.Context, est Estimator, target Estimand,
 					return
 				}
 				v, err := rp.run(b, ws)
-				if err != nil {
-					state[b], errs[b] = 2, err
-				} else {
-					state[b], values[b] = 1, v
-				}
+				results[w] = append(results[w], result{b, v, err})
 				mu.Lock()
 				done++
 				if o.Progress != nil && (done%step == 0 || done == o.Replicates) {
@@ -153,21 +154,24 @@ func (sc *Scores) Bootstrap(ctx context.Context, est Estimator, target Estimand,
 				}
 				mu.Unlock()
 			}
-		}()
+		}(w)
 	}
 	wg.Wait()
-	for b, s := range state {
-		switch s {
-		case 1:
-			bs.Replicates = append(bs.Replicates, values[b])
-			bs.Done++
-		case 2:
+	var all []result
+	for _, r := range results {
+		all = append(all, r...)
+	}
+	sort.Slice(all, func(i, j int) bool { return all[i].b < all[j].b })
+	for _, r := range all {
+		bs.Done++
+		if r.err != nil {
 			bs.Failed++
-			bs.Done++
 			if bs.FailReason == "" {
-				bs.FailReason = fmt.Sprintf("replicate %d: %v", b, errs[b])
+				bs.FailReason = fmt.Sprintf("replicate %d: %v", r.b, r.err)
 			}
+			continue
 		}
+		bs.Replicates = append(bs.Replicates, r.v)
 	}
 	bs.Partial = bs.Done < o.Replicates
 	bs.summarise()

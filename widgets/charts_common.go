@@ -71,7 +71,7 @@ func valueAxis(name string, lo, hi any) opts.XAxis {
 func yValueAxis(name string, lo, hi any, gap int) opts.YAxis {
 	return opts.YAxis{Type: "value", Name: name, NameLocation: "middle", NameGap: gap, Min: lo, Max: hi,
 		AxisLabel: &opts.AxisLabel{Show: opts.Bool(true), Color: ColorMuted},
-		AxisLine:  &opts.AxisLine{Show: opts.Bool(true), LineStyle: &opts.LineStyle{Color: ColorMuted}},
+		AxisLine:  &opts.AxisLine{Show: opts.Bool(true), OnZero: opts.Bool(false), LineStyle: &opts.LineStyle{Color: ColorMuted}},
 		SplitLine: &opts.SplitLine{Show: opts.Bool(true), LineStyle: &opts.LineStyle{Color: ColorRule}}}
 }
 

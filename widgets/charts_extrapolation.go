@@ -122,9 +122,21 @@ func ExtrapolationPlot(c *causal.ExtrapolationCurve) (Chart, error) {
 			if s.MarkAreas == nil {
 				s.MarkAreas = &opts.MarkAreas{}
 			}
-			for _, iv := range ivs {
+			// Only the widest region carries the label, so that narrow
+			// neighbouring regions do not print over each other.
+			widest := 0
+			for k, iv := range ivs {
+				if iv.Hi-iv.Lo > ivs[widest].Hi-ivs[widest].Lo {
+					widest = k
+				}
+			}
+			for k, iv := range ivs {
+				name := ""
+				if k == widest {
+					name = label
+				}
 				s.MarkAreas.Data = append(s.MarkAreas.Data, []any{
-					map[string]any{"name": label, "xAxis": round(iv.Lo, 6)}, map[string]any{"xAxis": round(iv.Hi, 6)}})
+					map[string]any{"name": name, "xAxis": round(iv.Lo, 6)}, map[string]any{"xAxis": round(iv.Hi, 6)}})
 			}
 			s.MarkAreas.MarkAreaStyle = opts.MarkAreaStyle{ItemStyle: &opts.ItemStyle{Color: colorNoSupport},
 				Label: &opts.Label{Show: opts.Bool(true), Color: ColorBad, FontSize: 11, Position: "insideTop"}}
@@ -139,7 +151,7 @@ func ExtrapolationPlot(c *causal.ExtrapolationCurve) (Chart, error) {
 		charts.WithItemStyleOpts(opts.ItemStyle{Color: ColorControl, Opacity: opts.Float(0.45)}),
 		shade("no controls", d.NoCtrl))
 	lines := charts.NewLine()
-	addFit := func(name string, f []float64, sup []bool, color string) {
+	addFit := func(name, short string, f []float64, sup []bool, color string) {
 		solid, dashed := splitLine(d.X, f, sup)
 		lines.AddSeries(name, solid,
 			charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false), ConnectNulls: opts.Bool(false)}),
@@ -150,14 +162,14 @@ func ExtrapolationPlot(c *causal.ExtrapolationCurve) (Chart, error) {
 			hasDash = hasDash || !s
 		}
 		if hasDash {
-			lines.AddSeries(name+", extrapolated", dashed,
+			lines.AddSeries(short+" extrapolated", dashed,
 				charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false), ConnectNulls: opts.Bool(false)}),
 				charts.WithLineStyleOpts(opts.LineStyle{Color: color, Width: 2, Type: "dashed"}),
 				charts.WithItemStyleOpts(opts.ItemStyle{Color: color}))
 		}
 	}
-	addFit("f1 (fitted on treated)", d.F1, d.Sup1, ColorTreated)
-	addFit("f0 (fitted on controls)", d.F0, d.Sup0, ColorControl)
+	addFit("f1 (fitted on treated)", "f1", d.F1, d.Sup1, ColorTreated)
+	addFit("f0 (fitted on controls)", "f0", d.F0, d.Sup0, ColorControl)
 	sc.Overlap(lines)
 	option, err := optionJSON(sc, nil)
 	if err != nil {

@@ -26,9 +26,10 @@ import (
 	"gonum.org/v1/plot/vg/vgimg"
 )
 
-// fallbackWidth is the width of the static pictures in pixels; the height
-// follows the chart's aspect ratio (fallbackHeight).
-const fallbackWidth = 640
+// fallbackWidth is the width of the static pictures in pixels: the chart's
+// own, so that the picture shows at its size, 1:1, sharp (fallbackHeight
+// keeps the chart's height).
+const fallbackWidth = chartWidthPixels
 
 // fallbackDPI maps points to pixels: 72 points per inch at 96 pixels per inch.
 const fallbackDPI = 96
@@ -291,6 +292,8 @@ func staticMirrored(h mirroredData, height int) ([]byte, error) {
 	p.X.Min, p.X.Max = h.Lo[0], h.Hi[len(h.Hi)-1]
 	p.Y.Min, p.Y.Max = ylo, yhi
 	p.Y.Tick.Marker = absTicks{}
+	// Bottom right: where the control bars are usually shortest.
+	p.Legend.Top, p.Legend.Left = false, false
 	return renderPNG(p, height)
 }
 
@@ -513,6 +516,8 @@ func staticBalance(b balanceData, height int) ([]byte, error) {
 		p.Legend.Add("after "+shorten(b.Label), s)
 	}
 	p.Legend.Add("|SMD| = 0.1", ref)
+	// Bottom right: terms are sorted with the largest |SMD| at the top.
+	p.Legend.Top, p.Legend.Left = false, false
 	names := make([]string, n)
 	for i, t := range b.Terms {
 		names[n-1-i] = t

@@ -741,8 +741,11 @@ func sweepTable(s *causal.Sweep) table {
 			status = flagCell("not estimated: "+r.Err, toneBad)
 		case !r.Supported:
 			status = flagCell("not supported by the data", toneBad)
-		case i == opt:
-			status = flagCell("nearest the optimal α", toneGood)
+		}
+		alpha := numCell(formatFixed(r.Alpha, 3))
+		if i == opt {
+			alpha.Text += " (≈ optimal)"
+			alpha.Hint = "the grid α nearest the optimal α of Crump et al. (2009)"
 		}
 		smd := numCell(smdText(r.MaxAbsSMD))
 		if finite(r.MaxAbsSMD) && r.MaxAbsSMD > smdReference {
@@ -754,7 +757,7 @@ func sweepTable(s *causal.Sweep) table {
 			}
 			return numCell(formatCount(int(math.Round(v))))
 		}
-		t.Rows = append(t.Rows, tableRow{Flagged: i == opt, Cells: []tableCell{numCell(formatFixed(r.Alpha, 3)),
+		t.Rows = append(t.Rows, tableRow{Flagged: i == opt, Cells: []tableCell{alpha,
 			numCell(formatCount(r.KeptTreated)), numCell(formatCount(r.KeptControl)), numCell(formatNumber(r.Value)),
 			numCell(formatNumber(r.SE)), numCell(intervalText(r.CI95)), smd, ess(r.ESSTreated), ess(r.ESSControl), status}})
 	}

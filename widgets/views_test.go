@@ -18,6 +18,9 @@ import (
 // the labels were shown, not dropped).
 func TestViewsEscapeHostileLabels(t *testing.T) {
 	r := resultsOf(t, hostileStudy(t), hostileColumn, "g", "b")
+	if r.Audit.Err() != nil || r.Curve.Err() != nil {
+		t.Fatalf("the extrapolation views must render here: %v / %v", r.Audit.Err(), r.Curve.Err())
+	}
 	var all strings.Builder
 	for _, x := range r.all() {
 		h := HTML(x)
@@ -154,6 +157,12 @@ func TestHeadlines(t *testing.T) {
 		{r.Weighted, []string{"After ATE weights"}},
 		{r.Verdict, []string{"Positivity is violated", "ATT"}},
 		{r.Weights, []string{"effective sample size"}},
+		{r.Estimates, []string{"estimates the ATE at", "do not support the ATE"}},
+		{r.Effect, []string{"IPW, normalised (Hájek) estimates the ATE at", "extrapolation"}},
+		{r.Trimmed, []string{"Trimming keeps", "scores in [0.050, 0.950]", "not the original population"}},
+		{r.TrimmedEs, []string{"for the trimmed population only"}},
+		{r.Bootstrap, []string{"Bootstrap of IPW, normalised (Hájek), ATE (12 replicates, seed 5)"}},
+		{r.Sweep, []string{"As α rises from 0.00 to 0.20", "optimal α of Crump et al. (2009)"}},
 	}
 	for _, c := range cases {
 		h := Headline(c.x)

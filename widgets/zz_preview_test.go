@@ -53,6 +53,16 @@ func TestZZPreview(t *testing.T) {
 		body = append(body, c.HTML(), c2.HTML(), `<script>setTimeout(function(){var r=document.querySelectorAll("input.cp-sweep-range")[1]; r.value="2"; r.dispatchEvent(new Event("input"));}, 1500);</script>`)
 		xs = nil
 	}
+	if os.Getenv("CP_EXTRAP") != "" {
+		e := extrapolationStudy(t, 3000)
+		esc := e.Propensity()
+		xs = []any{esc.Extrapolation(causal.ATE), esc.Sweep(causal.IPWNormalized, causal.ATE), sc.Sweep(causal.IPWNormalized, causal.ATE)}
+	}
+	if os.Getenv("CP_ALL") != "" {
+		r := resultsOf(t, waterStudy(), "district", "lot_m2", "pool")
+		h := resultsOf(t, hostileStudy(t), hostileColumn, "g", "b")
+		xs = append(r.all(), h.all()...)
+	}
 	for _, x := range xs {
 		body = append(body, HTML(x))
 		t.Log(Headline(x))

@@ -1,0 +1,280 @@
+package causal
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"strconv"
+	"strings"
+)
+
+// ReportSchema is the schema id of the report JSON (a contract with
+// pipelines; see report.schema.json beside this file).
+const ReportSchema = "counterpart.report/v1"
+
+// Cautions are carried by every report.
+var Cautions = []string{
+	"These diagnostics cannot verify unconfoundedness: overlap and balance on the measured covariates say nothing about confounders that were not measured.",
+	"Every estimate depends on the covariates measured and chosen for adjustment; adding covariates can make unconfoundedness more plausible while eroding overlap.",
+	"Trimming and overlap weights change the population an estimate describes; report which population it is.",
+	"Clinical, legal or policy decisions defer to local rules and licensed practice; this report does not replace either.",
+}
+
+// ReportOptions choose what a report estimates.
+type ReportOptions struct {
+	// Estimand: ATE (default), ATT or ATO (ATC is accepted too).
+	Estimand Estimand
+	// Trim: "none" (default), a symmetric α such as "0.1" (scores kept in
+	// [α, 1−α]; Crump, Hotz, Imbens & Mitnik 2009), or "optimal" (their
+	// optimal α).
+	Trim string
+	// Bootstrap replicates for the primary estimator (0: none) and the seed.
+	Bootstrap int
+	Seed      uint64
+	// Context cancels the bootstrap; Progress reports its replicates.
+	Context  context.Context
+	Progress func(done, total int)
+}
+
+// ReportData counts the rows.
+type ReportData struct {
+	Rows        int `json:"rows"`
+	RowsUsed    int `json:"rows_used"`
+	RowsDropped int `json:"rows_dropped"`
+	Treated     int `json:"treated"`
+	Control     int `json:"control"`
+}
+
+// ReportTrim describes the trimming applied before estimation.
+type ReportTrim struct {
+	Rule           string       `json:"rule"`
+	Alpha          Num          `json:"alpha"`
+	Keep           *[2]Num      `json:"keep"`
+	DroppedTreated int          `json:"dropped_treated"`
+	DroppedControl int          `json:"dropped_control"`
+	KeptTreated    int          `json:"kept_treated"`
+	KeptControl    int          `json:"kept_control"`
+	Population     string       `json:"population"`
+	Profile        []ProfileRow `json:"profile_dropped"`
+}
+
+// Report is the whole analysis of a Study for a pipeline: the fields of the
+// report JSON contract (schema counterpart.report/v1) plus the results they
+// come from, for the HTML and text views.
+type Report struct {
+	Schema     string        `json:"schema"`
+	Data       ReportData    `json:"data"`
+	Roles      Roles         `json:"roles"`
+	Propensity *Scores       `json:"propensity"`
+	Support    *Support      `json:"support"`
+	Cells      *Cells        `json:"cells"`
+	Balance    *BalanceSheet `json:"balance"`
+	// BalanceWeights names the weights behind smd_weighted.
+	BalanceWeights string      `json:"balance_weights"`
+	Trimming       *ReportTrim `json:"trimming"`
+	Estimates      []*Effect   `json:"estimates"`
+	Bootstrap      *Bootstrap  `json:"bootstrap"`
+	Verdict        *Verdict    `json:"verdict"`
+	Cautions       []string    `json:"cautions"`
+
+	// Results behind the fields, for views.
+	Study   *Study        `json:"-"`
+	Trimmed *Trimmed      `json:"-"`
+	Options ReportOptions `json:"-"`
+}
+
+// ParseTrim reads the --trim value: none, optimal, or α in [0, 0.5).
+func ParseTrim(s string) (TrimRule, bool, error) {
+	switch strings.ToLower(strings.TrimSpace(s)) {
+	case "", "none", "0":
+		return TrimRule{}, false, nil
+	case "optimal", "crump":
+		return CrumpOptimal(), true, nil
+	}
+	a, err := strconv.ParseFloat(s, 64)
+	if err != nil || math.IsNaN(a) || a < 0 || a >= 0.5 {
+		return TrimRule{}, false, fmt.Errorf("trim %q: use none, optimal, or a number α with 0 ≤ α < 0.5 (scores kept in [α, 1−α]), e.g. 0.1", s)
+	}
+	if a == 0 {
+		return TrimRule{}, false, nil
+	}
+	return Symmetric(a), true, nil
+}
+
+// discreteCovariates are the covariates used for the report's positivity
+// cells: categorical ones and 0/1 numeric ones, at most four, in order.
+func discreteCovariates(d *Design) []string {
+	var out []string
+	seen := map[string]bool{}
+	for _, t := range d.Terms[1:] {
+		if t.Binary && !seen[t.Column] {
+			seen[t.Column] = true
+			out = append(out, t.Column)
+			if len(out) == 4 {
+				break
+			}
+		}
+	}
+	return out
+}
+
+// BuildReport runs the whole analysis: propensity model, support by arm,
+// positivity cells on the discrete covariates, balance before and after the
+// estimand's weights, optional trimming, every estimator of the estimand,
+// an optional bootstrap of the primary estimator (AIPW; overlap weights for
+// the ATO) and the verdict. A data or option error is returned as an error
+// naming the column, row or option.
+func BuildReport(s *Study, o ReportOptions) (*Report, error) {
+	if o.Estimand == 0 {
+		o.Estimand = ATE
+	}
+	if !o.Estimand.valid() {
+		return nil, errors.New("estimand: use ATE, ATT, ATC or ATO")
+	}
+	if o.Bootstrap < 0 {
+		return nil, fmt.Errorf("bootstrap: %d replicates: use 0 (none) or a positive number", o.Bootstrap)
+	}
+	rule, trim, err := ParseTrim(o.Trim)
+	if err != nil {
+		return nil, err
+	}
+	d, err := s.Design()
+	if err != nil {
+		return nil, err
+	}
+	if d.Y == nil {
+		return nil, errors.New("no outcome column: name one (Outcome / --outcome)")
+	}
+	sc := s.Propensity()
+	if err := sc.Err(); err != nil {
+		return nil, err
+	}
+	r := &Report{Schema: ReportSchema, Study: s, Options: o, Cautions: append([]string(nil), Cautions...)}
+	r.Data = ReportData{Rows: d.RowsTotal, RowsUsed: d.N, RowsDropped: d.RowsDropped, Treated: d.Treated, Control: d.Control}
+	r.Roles = d.Roles()
+	r.Propensity = sc
+	r.Support = sc.Support()
+	var cells []*Cells
+	if cols := discreteCovariates(d); len(cols) > 0 {
+		r.Cells = s.Cells(cols...)
+		if err := r.Cells.Err(); err != nil {
+			return nil, err
+		}
+		cells = append(cells, r.Cells)
+	}
+	r.Verdict = sc.Verdict(VerdictOptions{}, cells...)
+	if err := r.Verdict.Err(); err != nil {
+		return nil, err
+	}
+	est := sc
+	if trim {
+		tr := sc.Trim(rule)
+		if err := tr.Err(); err != nil {
+			return nil, fmt.Errorf("trim %s: %w", o.Trim, err)
+		}
+		r.Trimmed = tr
+		rt := &ReportTrim{Rule: tr.Rule.String(), Alpha: Num(tr.Alpha), DroppedTreated: tr.DroppedTreated, DroppedControl: tr.DroppedControl,
+			KeptTreated: tr.KeptTreated, KeptControl: tr.KeptControl, Population: tr.Population, Profile: append([]ProfileRow{}, tr.Profile...)}
+		rt.Keep = &[2]Num{Num(tr.Keep.Lo), Num(tr.Keep.Hi)}
+		for i := range rt.Profile {
+			if math.IsNaN(rt.Profile[i].SMD) || math.IsInf(rt.Profile[i].SMD, 0) {
+				rt.Profile[i].SMD = 0
+			}
+		}
+		r.Trimming = rt
+		est = tr.Scores
+	}
+	w := est.Weights(o.Estimand)
+	if err := w.Err(); err != nil {
+		// Weights cannot be formed (e.g. scores of 0 or 1 for an estimand
+		// that divides by them): balance is shown before weighting only.
+		r.Balance = balanceFor(est.Design, nil, "")
+		r.BalanceWeights = "none: " + err.Error()
+	} else {
+		r.Balance = w.Balance()
+		r.BalanceWeights = weightLabel(o.Estimand)
+	}
+	var estCells []*Cells
+	if !trim {
+		estCells = cells
+	}
+	es := est.Effects(o.Estimand, estCells...)
+	if err := es.Err(); err != nil {
+		return nil, err
+	}
+	r.Estimates = es.Items
+	if o.Bootstrap > 0 {
+		ctx := o.Context
+		if ctx == nil {
+			ctx = context.Background()
+		}
+		primary := AIPW
+		if o.Estimand == ATO || !primary.targets(o.Estimand) {
+			primary = OverlapWeighted
+			if o.Estimand != ATO {
+				primary = IPWNormalized
+			}
+		}
+		r.Bootstrap = est.Bootstrap(ctx, primary, o.Estimand, BootstrapOptions{Replicates: o.Bootstrap, Seed: o.Seed, Progress: o.Progress})
+		if err := r.Bootstrap.Err(); err != nil {
+			return nil, err
+		}
+	}
+	return r, nil
+}
+
+// String is the short text summary printed by the report command.
+func (r *Report) String() string {
+	var b strings.Builder
+	fmt.Fprintf(&b, "counterpart report: %s on %s, %d rows used (%d treated, %d control", r.Roles.Outcome, r.Roles.Treatment, r.Data.RowsUsed, r.Data.Treated, r.Data.Control)
+	if r.Data.RowsDropped > 0 {
+		fmt.Fprintf(&b, "; %d incomplete rows dropped", r.Data.RowsDropped)
+	}
+	b.WriteString(")\n")
+	fmt.Fprintf(&b, "propensity: AUC %.3f, %s", r.Propensity.AUC, map[bool]string{true: "converged", false: "not converged"}[r.Propensity.Converged])
+	if r.Propensity.Separated() {
+		fmt.Fprintf(&b, ", separation in %d place(s)", len(r.Propensity.Separation))
+	}
+	b.WriteString("\n")
+	if r.Support.Band.Lo <= r.Support.Band.Hi {
+		fmt.Fprintf(&b, "common support [%.3f, %.3f]; outside: %d treated, %d control\n", r.Support.Band.Lo, r.Support.Band.Hi, r.Support.OutsideTreated, r.Support.OutsideControl)
+	} else {
+		b.WriteString("common support: none (the arms' score ranges do not overlap)\n")
+	}
+	fmt.Fprintf(&b, "largest |SMD|: %.3f before, %.3f after %s\n", r.Balance.maxBefore(), r.Balance.MaxAbsSMD(), r.BalanceWeights)
+	if r.Trimming != nil {
+		fmt.Fprintf(&b, "trimmed (%s): dropped %d treated and %d control; the estimand is now for %s\n", r.Trimming.Rule, r.Trimming.DroppedTreated, r.Trimming.DroppedControl, r.Trimming.Population)
+	}
+	for _, e := range r.Estimates {
+		if e.Err() != nil {
+			fmt.Fprintf(&b, "  %-22s %s  error: %v\n", e.Estimator, e.Estimand, e.Err())
+			continue
+		}
+		flag := ""
+		if !e.Supported {
+			flag = "  [not supported by the data: " + e.Unsupported + "]"
+		}
+		fmt.Fprintf(&b, "  %-22s %s %12.4g  SE %10.4g  95%% CI [%.4g, %.4g]  (%s)%s\n", e.Estimator, e.Estimand, e.Value, e.SE, e.CI95.Lo, e.CI95.Hi, e.SEMethod, flag)
+	}
+	if r.Bootstrap != nil {
+		fmt.Fprintf(&b, "  bootstrap: %s\n", strings.TrimSpace(strings.SplitN(r.Bootstrap.String(), "\n", 2)[0]))
+	}
+	fmt.Fprintf(&b, "verdict: %s", strings.ToUpper(r.Verdict.Status))
+	if len(r.Verdict.Reasons) > 0 {
+		fmt.Fprintf(&b, " — %s", strings.Join(r.Verdict.Reasons, "; "))
+	}
+	fmt.Fprintf(&b, "\nsupported estimands: %s\n", strings.Join(r.Verdict.Supported, ", "))
+	b.WriteString("caution: " + Cautions[0] + "\n")
+	return b.String()
+}
+
+func (b *BalanceSheet) maxBefore() float64 {
+	var m float64
+	for _, r := range b.Rows {
+		if !math.IsNaN(r.SMD) {
+			m = math.Max(m, math.Abs(r.SMD))
+		}
+	}
+	return m
+}

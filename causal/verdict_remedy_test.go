@@ -1,0 +1,77 @@
+package causal
+
+import (
+	"encoding/json"
+	"strings"
+	"testing"
+)
+
+// The water scenario (testdata/README.md): district harbour was never
+// offered audits (552 households, all controls). The verdict withdraws the
+// ATE, keeps the ATT and ATO, recommends the ATT and says what each remedy
+// costs and who is affected.
+func TestVerdictRemediesWater(t *testing.T) {
+	s := Load("../testdata/water_audits.csv").Treat("audit").TreatedLevel("yes").Outcome("litres_per_day").
+		Adjust("district", "income_band", "household_size", "lot_m2", "home_age", "pool", "last_summer_lpd")
+	sc := s.Propensity()
+	v := sc.Verdict(VerdictOptions{}, s.Cells("district", "pool"))
+	if v.Err() != nil {
+		t.Fatal(v.Err())
+	}
+	if v.Status != Violated || strings.Join(v.Supported, ",") != "ATT,ATO" {
+		t.Fatalf("status %s, supported %v", v.Status, v.Supported)
+	}
+	if len(v.Remedies) != 3 || v.Remedies[0].Action != "target_att" || v.Remedies[1].Action != "overlap_weights" || v.Remedies[2].Action != "trim" {
+		t.Fatalf("remedies %+v", v.Remedies)
+	}
+	att := v.Remedies[0]
+	if att.Unrepresented < 552 || att.DropsTreated+att.DropsControl != 0 || att.Who[0].Term != "district=harbour" || !strings.Contains(att.WhoText, "district=harbour") {
+		t.Errorf("ATT remedy cost %+v", att)
+	}
+	if v.Remedy != att.Text || !strings.Contains(att.Text, "every treated unit has comparable controls") {
+		t.Errorf("remedy text %q", v.Remedy)
+	}
+	tr := v.Remedies[2]
+	check := sc.Trim(CrumpOptimal())
+	if tr.DropsTreated != check.DroppedTreated || tr.DropsControl != check.DroppedControl || float64(tr.Alpha) != check.Alpha {
+		t.Errorf("trim remedy drops %d/%d at α %g; Trim(CrumpOptimal()) drops %d/%d at %g", tr.DropsTreated, tr.DropsControl, float64(tr.Alpha), check.DroppedTreated, check.DroppedControl, check.Alpha)
+	}
+	if w := sc.Weights(ATO); float64(v.Remedies[1].ESSTreated) != w.ESSTreated {
+		t.Errorf("overlap remedy ESS %g vs weights %g", float64(v.Remedies[1].ESSTreated), w.ESSTreated)
+	}
+	text := v.String()
+	for _, want := range []string{"remedy: estimate the ATT", "alternative: estimate the ATO", "alternative: trim", "who: the 1", "cannot verify unconfoundedness"} {
+		if !strings.Contains(text, want) {
+			t.Errorf("verdict text lacks %q:\n%s", want, text)
+		}
+	}
+	b, err := json.Marshal(v)
+	if err != nil || !strings.Contains(string(b), `"remedies":[{"action":"target_att"`) || !strings.Contains(string(b), `"drops_control":`) {
+		t.Errorf("JSON %s %v", b, err)
+	}
+	// Effects agree with the verdict.
+	for _, target := range []Estimand{ATE, ATT, ATO} {
+		e := sc.Effect(IPWNormalized, target, s.Cells("district", "pool"))
+		if target == ATO {
+			e = sc.Effect(OverlapWeighted, ATO, s.Cells("district", "pool"))
+		}
+		want := strings.Contains(strings.Join(v.Supported, ","), target.String())
+		if e.Supported != want {
+			t.Errorf("%s: effect supported=%v, verdict %v", target, e.Supported, v.Supported)
+		}
+	}
+}
+
+// Adequate data: one remedy, "none", and the ATE's weights' ESS.
+func TestVerdictRemedyAdequate(t *testing.T) {
+	v := nswStudy().Propensity().Verdict(VerdictOptions{})
+	if v.Status != Adequate || len(v.Remedies) != 1 || v.Remedies[0].Action != "none" || float64(v.Remedies[0].ESSTreated) < 170 {
+		t.Errorf("%+v", v.Remedies)
+	}
+	// Limited without a violation (scores reaching 0.99 for pools on big
+	// lots): overlap weights recommended, trimming as the alternative.
+	l := waterStudy().Propensity().Verdict(VerdictOptions{})
+	if l.Status != Limited || l.Remedies[0].Action != "overlap_weights" || l.Remedies[len(l.Remedies)-1].Action != "trim" {
+		t.Errorf("limited: %s %+v", l.Status, l.Remedies)
+	}
+}
