@@ -289,7 +289,17 @@ func (t *Trimmed) mark(e *Effect) {
 	if t.DroppedTreated+t.DroppedControl == 0 {
 		return
 	}
-	e.Population = fmt.Sprintf("%s among the kept units (scores in [%.4g, %.4g])", e.Estimand.population(), t.Keep.Lo, t.Keep.Hi)
+	where := fmt.Sprintf("scores in [%.4g, %.4g]", t.Keep.Lo, t.Keep.Hi)
+	switch e.Estimand {
+	case ATT:
+		e.Population = fmt.Sprintf("the %d kept treated units (%s)", t.KeptTreated, where)
+	case ATC:
+		e.Population = fmt.Sprintf("the %d kept control units (%s)", t.KeptControl, where)
+	case ATO:
+		e.Population = fmt.Sprintf("the overlap population of the %d kept units (%s)", t.KeptTreated+t.KeptControl, where)
+	default:
+		e.Population = fmt.Sprintf("the %d kept units (%s)", t.KeptTreated+t.KeptControl, where)
+	}
 	e.flag("trimmed_population", t.Population)
 }
 

@@ -36,7 +36,8 @@ func IsNotebook() bool { return gonbui.IsNotebook }
 var (
 	showMu sync.Mutex
 	// libraryShown is set once the ECharts library went out with a display in
-	// this process (a notebook cell is one process).
+	// this process (a notebook cell is one process); the kernel session as a
+	// whole is tracked by a marker file (see librarySentInSession).
 	libraryShown bool
 	// pageParts collects, outside a notebook, what was shown, for HTMLPageEnv.
 	pageParts []string
@@ -51,9 +52,25 @@ type htmler interface{ HTML() string }
 // Show displays each value: an error as an error panel, a value with an
 // HTML() string method as that HTML, a value with String() as preformatted
 // text, anything else as fmt prints it. In a notebook all values go out as
-// ONE display message carrying text/html and text/plain. The first display
-// in a process that holds a chart also carries the ECharts library, so saved
-// and exported notebooks draw offline.
+// ONE display message carrying text/html and text/plain.
+//
+// The first display of a kernel session that holds a chart also carries the
+// ECharts library (about 1 MB), so saved and exported notebooks draw offline;
+// later charts wait for that copy (window.echarts) instead of repeating it.
+// GoNB runs each cell as a new process, so the session is recognised by a
+// marker file in GoNB's per-kernel build folder ($GONB_TMP_DIR, made anew at
+// each kernel start and removed when the kernel stops): after a restart the
+// first chart inlines the library again. When that folder is unknown or the
+// marker cannot be written, every cell that shows a chart inlines it, as a
+// cell of its own would need.
+//
+// One copy per session means the copy lives in one cell's output. Clearing
+// that output, or re-running that cell, in the same session leaves the live
+// page drawing (the library stays loaded there), but a notebook saved then
+// holds no copy: when it is opened again its charts show their static
+// pictures until a cell showing a chart runs in the new kernel session (or
+// the notebook is run again from the top). `counterpart run` always runs from
+// a fresh kernel, so its exports hold exactly one copy.
 //
 // Outside a notebook Show prints the text form to standard output and, when
 // COUNTERPART_HTML is set to a path, (re)writes an HTML page there with
@@ -85,9 +102,11 @@ func Show(xs ...any) {
 	defer showMu.Unlock()
 	if IsNotebook() {
 		var b strings.Builder
-		if !libraryShown && strings.Contains(html, widgets.ChartMarker) {
-			b.WriteString(libraryHTML())
-			libraryShown = true
+		withLibrary, localLibrary := false, false
+		if !libraryShown && strings.Contains(html, widgets.ChartMarker) && !librarySentInSession() {
+			lib, local := libraryHTML()
+			b.WriteString(lib)
+			withLibrary, localLibrary = true, local
 		}
 		b.WriteString(widgets.Style())
 		b.WriteString(`<div class="cp-output">`)
@@ -98,7 +117,15 @@ func Show(xs ...any) {
 			protocol.MIMETextPlain: text,
 		}})
 		if gonbui.Error() == nil {
-			syncWithKernel()
+			received := syncWithKernel()
+			if withLibrary {
+				libraryShown = true
+				// Only a confirmed local copy spares later cells theirs: the
+				// CDN loader must be repeated once the local copy exists.
+				if received && localLibrary {
+					markLibrarySent()
+				}
+			}
 			return
 		}
 		// The pipe to GoNB broke: the text still reaches the cell through stdout.
@@ -118,8 +145,8 @@ func Show(xs ...any) {
 
 // syncWithKernel waits until GoNB has taken the messages sent so far, so that
 // a cell ending right after Show does not lose its output; it gives up after
-// syncTimeout.
-func syncWithKernel() {
+// syncTimeout. It reports whether GoNB confirmed.
+func syncWithKernel() bool {
 	done := make(chan struct{})
 	go func() {
 		defer close(done)
@@ -127,8 +154,52 @@ func syncWithKernel() {
 	}()
 	select {
 	case <-done:
+		return gonbui.Error() == nil
 	case <-time.After(syncTimeout):
+		return false
 	}
+}
+
+// libraryMarkerName is the marker file, in the kernel session's folder, that
+// says the ECharts library already went out in this session.
+const libraryMarkerName = ".counterpart-echarts-" + EChartsVersion + "-sent"
+
+// sessionDir returns the folder GoNB made for this kernel session: its build
+// folder, $GONB_TMP_DIR, which GoNB creates at each kernel start (under a new
+// random name) and removes when the kernel stops. It returns "" outside GoNB
+// or when the folder is not there.
+func sessionDir() string {
+	dir := os.Getenv(protocol.GONB_TMP_DIR_ENV)
+	if dir == "" || !filepath.IsAbs(dir) {
+		return ""
+	}
+	if fi, err := os.Stat(dir); err != nil || !fi.IsDir() {
+		return ""
+	}
+	return dir
+}
+
+// librarySentInSession reports whether an earlier cell of this kernel session
+// already sent the local ECharts library.
+func librarySentInSession() bool {
+	dir := sessionDir()
+	if dir == "" {
+		return false
+	}
+	fi, err := os.Lstat(filepath.Join(dir, libraryMarkerName))
+	return err == nil && fi.Mode().IsRegular()
+}
+
+// markLibrarySent leaves the session's marker. It is best effort: when the
+// marker cannot be written, later cells inline the library again.
+func markLibrarySent() {
+	dir := sessionDir()
+	if dir == "" {
+		return
+	}
+	// Only the file's existence counts, so a partial write is harmless.
+	note := []byte("ECharts " + EChartsVersion + " was sent to the notebook by a counterpart cell of this kernel session.\n")
+	_ = os.WriteFile(filepath.Join(dir, libraryMarkerName), note, 0o600)
 }
 
 // render returns the HTML and text forms of one value, turning a panic in
@@ -191,14 +262,15 @@ func writePage(path string, parts []string) error {
 	return os.Rename(tmp, path)
 }
 
-// libraryHTML returns the ECharts library as a script element, or, when the
-// local copy is missing, the last-resort loader from a CDN with a visible note.
-func libraryHTML() string {
+// libraryHTML returns the ECharts library as a script element (local true),
+// or, when the local copy is missing, the last-resort loader from a CDN with
+// a visible note (local false).
+func libraryHTML() (html string, local bool) {
 	js, err := EChartsJS()
 	if err != nil {
-		return cdnFallbackHTML(err)
+		return cdnFallbackHTML(err), false
 	}
-	return widgets.LibraryScript(js)
+	return widgets.LibraryScript(js), true
 }
 
 // EChartsCDN is where charts load ECharts from when no local copy exists.

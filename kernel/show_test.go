@@ -119,7 +119,10 @@ func TestShowWritesHTMLPage(t *testing.T) {
 
 func TestMissingLibraryFallsBackToCDNWithNote(t *testing.T) {
 	t.Setenv(EChartsEnv, filepath.Join(t.TempDir(), "absent.js"))
-	h := libraryHTML()
+	h, local := libraryHTML()
+	if local {
+		t.Fatal("libraryHTML reports a local copy although none exists")
+	}
 	if !strings.Contains(h, EChartsCDN) || !strings.Contains(h, "counterpart setup") || !strings.Contains(h, `class="cp-note"`) {
 		t.Fatalf("want a CDN loader with a visible note, got %s", h)
 	}

@@ -9,7 +9,6 @@ import (
 )
 
 var reportHead = template.Must(template.New("head").Parse(`<section class="cp-report-head">
-<h1>Positivity and effect report</h1>
 <p><b>{{.Outcome}}</b> by <b>{{.Treatment}}</b>{{if .TreatedLevel}} (treated = {{.TreatedLevel}}){{end}}, adjusting for {{.Covariates}}.
 {{.Used}} rows used of {{.Rows}}{{if .Dropped}} ({{.Dropped}} incomplete rows dropped){{end}}: {{.Treated}} treated, {{.Control}} control.
 Target estimand: <b>{{.Estimand}}</b>{{if .Trim}}; trimming: {{.Trim}}{{end}}{{if .Boot}}; bootstrap: {{.Boot}}{{end}}.</p>

@@ -58,6 +58,10 @@ func TestZZPreview(t *testing.T) {
 		esc := e.Propensity()
 		xs = []any{esc.Extrapolation(causal.ATE), esc.Sweep(causal.IPWNormalized, causal.ATE), sc.Sweep(causal.IPWNormalized, causal.ATE)}
 	}
+	if os.Getenv("CP_HOSTILE") != "" {
+		h := resultsOf(t, hostileStudy(t), hostileColumn, "g", "b")
+		xs = []any{h.Cells2, h.Balance, h.Curve, h.Scores}
+	}
 	if os.Getenv("CP_ALL") != "" {
 		r := resultsOf(t, waterStudy(), "district", "lot_m2", "pool")
 		h := resultsOf(t, hostileStudy(t), hostileColumn, "g", "b")
