@@ -1,9 +1,12 @@
 package causal
 
 import (
+	"bytes"
 	"encoding/json"
 	"math"
 	"os"
+	"os/exec"
+	"path/filepath"
 	"testing"
 )
 
@@ -270,6 +273,36 @@ func TestSeparationFlagged(t *testing.T) {
 	for _, e := range v.Supported {
 		if e == "ATE" || e == "ATT" {
 			t.Errorf("%s listed as supported although gate=1 has no controls", e)
+		}
+	}
+}
+
+// The committed reference values must be what the committed R script prints:
+// rerun it (Debian's r-base-core) into a temporary folder and compare bytes.
+// Required in CI (CI=true or COUNTERPART_E2E=1); skipped elsewhere without R.
+func TestReferenceScriptReproduces(t *testing.T) {
+	rscript, err := exec.LookPath("Rscript")
+	if err != nil {
+		if os.Getenv("CI") != "" || os.Getenv("COUNTERPART_E2E") != "" {
+			t.Fatal("Rscript not found: apt-get install -y r-base-core")
+		}
+		t.Skip("Rscript not installed (apt-get install -y r-base-core); the committed values are used as they are")
+	}
+	dir := t.TempDir()
+	cmd := exec.Command(rscript, "testdata/reference/nsw_reference.R")
+	cmd.Dir = ".."
+	cmd.Env = append(os.Environ(), "COUNTERPART_REF_OUT="+dir)
+	if out, err := cmd.CombinedOutput(); err != nil {
+		t.Fatalf("Rscript failed: %v\n%s", err, out)
+	}
+	for _, f := range []string{"nsw_reference.json", "nsw_schooling.csv", "separation.csv"} {
+		got, err := os.ReadFile(filepath.Join(dir, f))
+		if err != nil {
+			t.Fatal(err)
+		}
+		want, _ := os.ReadFile(filepath.Join("../testdata/reference", f))
+		if !bytes.Equal(got, want) {
+			t.Errorf("%s: R now writes something else than the committed file; rerun the script and review the change", f)
 		}
 	}
 }

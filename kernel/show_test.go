@@ -169,17 +169,41 @@ func (f *fakeGoNB) reset() {
 	f.mu.Unlock()
 }
 
+var (
+	fakeOnce   sync.Once
+	fakeShared *fakeGoNB
+	fakeErr    error
+)
+
+// startFakeGoNB returns the fake GoNB of this test process (gonbui opens its
+// pipes once per process, as in a real cell), emptied, with the program in
+// notebook mode for the rest of the test.
 func startFakeGoNB(t *testing.T) *fakeGoNB {
 	t.Helper()
-	dir := t.TempDir()
+	fakeOnce.Do(func() { fakeShared, fakeErr = newFakeGoNB() })
+	if fakeErr != nil {
+		t.Skipf("named pipes unavailable (%v): the notebook path is covered by the end-to-end test", fakeErr)
+	}
+	fakeShared.reset()
+	gonbui.IsNotebook = true
+	t.Cleanup(func() { gonbui.IsNotebook = false })
+	return fakeShared
+}
+
+func newFakeGoNB() (*fakeGoNB, error) {
+	dir, err := os.MkdirTemp("", "counterpart-fake-gonb-")
+	if err != nil {
+		return nil, err
+	}
 	toKernel, fromKernel := filepath.Join(dir, "pipe"), filepath.Join(dir, "pipe_back")
 	for _, p := range []string{toKernel, fromKernel} {
 		if err := syscall.Mkfifo(p, 0o600); err != nil {
-			t.Skipf("named pipes unavailable (%v): the notebook path is covered by the end-to-end test", err)
+			return nil, err
 		}
 	}
-	t.Setenv(protocol.GONB_PIPE_ENV, toKernel)
-	t.Setenv(protocol.GONB_PIPE_BACK_ENV, fromKernel)
+	// Read by gonbui when it first opens the pipes.
+	os.Setenv(protocol.GONB_PIPE_ENV, toKernel)
+	os.Setenv(protocol.GONB_PIPE_BACK_ENV, fromKernel)
 	f := &fakeGoNB{}
 	go func() {
 		r, err := os.Open(toKernel)
@@ -206,15 +230,14 @@ func startFakeGoNB(t *testing.T) *fakeGoNB {
 			}
 		}
 	}()
-	gonbui.IsNotebook = true
-	t.Cleanup(func() { gonbui.IsNotebook = false })
-	return f
+	return f, nil
 }
 
 func TestNotebookDisplayContract(t *testing.T) {
 	fakeLibrary(t)
 	f := startFakeGoNB(t)
 	libraryShown = false
+	t.Setenv(protocol.GONB_TMP_DIR_ENV, "") // no session folder: the library goes out once per process
 	syncTimeout = 5 * time.Second
 
 	// One Show with two charts, an error and text: ONE display message with both MIME types.
@@ -283,6 +306,145 @@ func TestNotebookDisplayContract(t *testing.T) {
 	}
 	if last, _ := msgs[len(msgs)-1].Data[protocol.MIMETextHTML].(string); last != "" {
 		t.Fatalf("finish must clear the bar, got %q", last)
+	}
+}
+
+// libraryCopies counts the inlined ECharts library and the CDN loader in one
+// display's HTML.
+func libraryCopies(t *testing.T, f *fakeGoNB) (local, cdn int) {
+	t.Helper()
+	msgs := f.displays()
+	if len(msgs) != 1 {
+		t.Fatalf("want 1 display message, got %d", len(msgs))
+	}
+	f.reset()
+	h, _ := msgs[0].Data[protocol.MIMETextHTML].(string)
+	return strings.Count(h, `data-cp-echarts="library"`), strings.Count(h, EChartsCDN)
+}
+
+// newCell plays the start of a new cell: GoNB runs each cell as a new
+// process, so the per-process flag starts unset.
+func newCell() { libraryShown = false }
+
+func TestLibraryOncePerKernelSession(t *testing.T) {
+	fakeLibrary(t)
+	f := startFakeGoNB(t)
+	syncTimeout = 5 * time.Second
+	session := t.TempDir()
+	t.Setenv(protocol.GONB_TMP_DIR_ENV, session)
+	marker := filepath.Join(session, libraryMarkerName)
+
+	// A cell without charts neither sends the library nor marks the session.
+	newCell()
+	Show(stringer("text only"))
+	if local, _ := libraryCopies(t, f); local != 0 {
+		t.Fatal("a display without charts carried the library")
+	}
+	if _, err := os.Stat(marker); err == nil {
+		t.Fatal("the session was marked although no library went out")
+	}
+
+	// The first chart of the session carries it and marks the session.
+	newCell()
+	Show(chart("first"))
+	if local, _ := libraryCopies(t, f); local != 1 {
+		t.Fatalf("first chart of the session: %d library copies, want 1", local)
+	}
+	if _, err := os.Stat(marker); err != nil {
+		t.Fatalf("the session marker was not written: %v", err)
+	}
+
+	// Later cells of the same session do not repeat it.
+	for i := 0; i < 3; i++ {
+		newCell()
+		Show(chart("later"))
+		if local, _ := libraryCopies(t, f); local != 0 {
+			t.Fatalf("cell %d of the same session repeated the library", i+2)
+		}
+	}
+
+	// A restarted kernel has a new folder: its first chart carries it again.
+	t.Setenv(protocol.GONB_TMP_DIR_ENV, t.TempDir())
+	newCell()
+	Show(chart("after restart"))
+	if local, _ := libraryCopies(t, f); local != 1 {
+		t.Fatalf("first chart after a restart: %d library copies, want 1", local)
+	}
+}
+
+func TestLibraryInlinedWhenSessionCannotBeMarked(t *testing.T) {
+	fakeLibrary(t)
+	f := startFakeGoNB(t)
+	syncTimeout = 5 * time.Second
+	cases := map[string]func(t *testing.T) string{
+		"no session folder": func(t *testing.T) string { return "" },
+		"relative folder":   func(t *testing.T) string { return "gonb_tmp" },
+		"folder missing":    func(t *testing.T) string { return filepath.Join(t.TempDir(), "gone") },
+		"folder is a file":  func(t *testing.T) string { p := filepath.Join(t.TempDir(), "f"); os.WriteFile(p, nil, 0o600); return p },
+		"marker path is blocked": func(t *testing.T) string {
+			d := t.TempDir()
+			os.Mkdir(filepath.Join(d, libraryMarkerName), 0o700)
+			return d
+		},
+	}
+	for name, dir := range cases {
+		t.Run(name, func(t *testing.T) {
+			t.Setenv(protocol.GONB_TMP_DIR_ENV, dir(t))
+			for cell := 1; cell <= 2; cell++ {
+				newCell()
+				Show(chart("c"))
+				if local, _ := libraryCopies(t, f); local != 1 {
+					t.Fatalf("cell %d: %d library copies; without a usable marker every chart cell must inline it", cell, local)
+				}
+			}
+		})
+	}
+}
+
+func TestCDNLoaderDoesNotMarkSession(t *testing.T) {
+	f := startFakeGoNB(t)
+	syncTimeout = 5 * time.Second
+	session := t.TempDir()
+	t.Setenv(protocol.GONB_TMP_DIR_ENV, session)
+
+	// No local library: the CDN loader goes out, and the session stays unmarked...
+	t.Setenv(EChartsEnv, filepath.Join(t.TempDir(), "absent.js"))
+	newCell()
+	Show(chart("before setup"))
+	if local, cdn := libraryCopies(t, f); local != 0 || cdn != 1 {
+		t.Fatalf("without a local copy: %d local, %d CDN loaders; want 0 and 1", local, cdn)
+	}
+	if _, err := os.Stat(filepath.Join(session, libraryMarkerName)); err == nil {
+		t.Fatal("the CDN loader marked the session")
+	}
+	// ...so once setup placed the library, the next chart cell inlines it.
+	fakeLibrary(t)
+	newCell()
+	Show(chart("after setup"))
+	if local, cdn := libraryCopies(t, f); local != 1 || cdn != 0 {
+		t.Fatalf("after setup: %d local, %d CDN loaders; want 1 and 0", local, cdn)
+	}
+}
+
+func TestOutsideNotebookIgnoresSessionMarker(t *testing.T) {
+	captureStdout(t)
+	fakeLibrary(t)
+	session := t.TempDir()
+	t.Setenv(protocol.GONB_TMP_DIR_ENV, session)
+	if err := os.WriteFile(filepath.Join(session, libraryMarkerName), nil, 0o600); err != nil {
+		t.Fatal(err)
+	}
+	page := filepath.Join(t.TempDir(), "out.html")
+	t.Setenv(HTMLPageEnv, page)
+	pageParts = nil
+	libraryShown = false
+	Show(chart("terminal"))
+	data, err := os.ReadFile(page)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(data), `data-cp-echarts="library"`) {
+		t.Fatal("the COUNTERPART_HTML page must always inline the library")
 	}
 }
 

@@ -112,9 +112,15 @@ func CellsHeatmap(c *causal.Cells) (Chart, error) {
 	xAxis := opts.XAxis{Type: "category", Data: xLabels, Name: shorten(h.XName), NameLocation: "middle", NameGap: 34,
 		SplitArea: &opts.SplitArea{Show: opts.Bool(true)},
 		AxisLabel: &opts.AxisLabel{Show: opts.Bool(true), Color: ColorMuted, Interval: "0"}}
-	if nx > 6 {
+	chars := 0
+	for _, l := range xLabels {
+		chars += len([]rune(l))
+	}
+	// Rotate labels that would not fit side by side (about 7 px a character
+	// across the 470 px of the plot).
+	if nx > 6 || chars*7 > 440 {
 		xAxis.AxisLabel.Rotate = 30
-		xAxis.NameGap = 64
+		xAxis.NameGap = 70
 	}
 	hm.SetGlobalOptions(
 		charts.WithXAxisOpts(xAxis),

@@ -18,6 +18,7 @@ type extrapData struct {
 	TTotal, CTotal    int
 	NoTreated, NoCtrl []causal.Interval
 	YMin, YMax        float64
+	XMin, XMax        float64 // axis range on a nice step
 	Held              []causal.HeldValue
 }
 
@@ -59,6 +60,12 @@ func extrapOf(c *causal.ExtrapolationCurve) (extrapData, error) {
 		step = 1
 	}
 	d.YMin, d.YMax = math.Floor(lo/step)*step, math.Ceil(hi/step)*step
+	xlo, xhi := d.X[0], d.X[len(d.X)-1]
+	xstep := niceStep((xhi - xlo) / 8)
+	if xhi == xlo {
+		xstep = 1
+	}
+	d.XMin, d.XMax = math.Floor(xlo/xstep)*xstep, math.Ceil(xhi/xstep)*xstep
 	return d, nil
 }
 
@@ -99,7 +106,7 @@ func ExtrapolationPlot(c *causal.ExtrapolationCurve) (Chart, error) {
 	sc := charts.NewScatter()
 	sc.SetGlobalOptions(commonOptions(title, "item", true)...)
 	sc.SetGlobalOptions(
-		charts.WithXAxisOpts(valueAxis(shorten(d.Covariate), d.X[0], d.X[len(d.X)-1])),
+		charts.WithXAxisOpts(valueAxis(shorten(d.Covariate), round(d.XMin, 8), round(d.XMax, 8))),
 		charts.WithYAxisOpts(yValueAxis("outcome", round(d.YMin, 8), round(d.YMax, 8), 56)),
 		gridOpts(80, 32, 64, 56),
 		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Top: "0", Left: "center", Width: "620",

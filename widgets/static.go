@@ -800,7 +800,7 @@ func staticExtrapolation(d extrapData, height int) ([]byte, error) {
 			start = i
 		}
 	}
-	p.X.Min, p.X.Max = d.X[0], d.X[len(d.X)-1]
+	p.X.Min, p.X.Max = d.XMin, d.XMax
 	p.Y.Min, p.Y.Max = d.YMin, d.YMax
 	p.Legend.Left = true
 	return renderPNG(p, height)

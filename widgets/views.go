@@ -412,11 +412,21 @@ func extrapolationHeadline(a *causal.ExtrapolationAudit) string {
 
 func curveHeadline(c *causal.ExtrapolationCurve) string {
 	ivs := func(v []causal.Interval) string {
+		one := func(iv causal.Interval) string { return "[" + formatNumber(iv.Lo) + ", " + formatNumber(iv.Hi) + "]" }
+		if len(v) > 2 {
+			widest := v[0]
+			for _, iv := range v {
+				if iv.Hi-iv.Lo > widest.Hi-widest.Lo {
+					widest = iv
+				}
+			}
+			return fmt.Sprintf("%d stretches (the widest %s)", len(v), one(widest))
+		}
 		var s []string
 		for _, iv := range v {
-			s = append(s, "["+formatNumber(iv.Lo)+", "+formatNumber(iv.Hi)+"]")
+			s = append(s, one(iv))
 		}
-		return strings.Join(s, ", ")
+		return strings.Join(s, " and ")
 	}
 	switch {
 	case len(c.Unsupported1) == 0 && len(c.Unsupported0) == 0:

@@ -10,7 +10,7 @@
 #         testdata/reference/nsw_reference.json  (all reference values; numbers printed with 17 significant digits)
 
 stopifnot(file.exists("testdata/nsw_dehejia_wahba.csv"))
-out_dir <- "testdata/reference"
+out_dir <- Sys.getenv("COUNTERPART_REF_OUT", "testdata/reference")
 
 # ---------------------------------------------------------------------------------------------
 # Minimal JSON writer (base R only). Doubles are printed with sprintf("%.17g") so that a reader
