@@ -227,6 +227,7 @@ type replicator struct {
 	start  []float64
 	pinned []bool // units whose score stays at the full-sample 0 or 1
 	npin   int
+	scale  []float64 // RMS of the columns of xp (conditioning of the solves)
 }
 
 func newReplicator(sc *Scores, est Estimator, target Estimand, seed uint64) *replicator {
@@ -253,6 +254,13 @@ func newReplicator(sc *Scores, est Estimator, target Estimand, seed uint64) *rep
 	for a, j := range free {
 		rp.start[a] = sc.beta[j]
 	}
+	rp.scale = make([]float64, rp.pp)
+	for a, j := range free {
+		rp.scale[a] = rmsCol(d, j)
+		if rp.scale[a] == 0 {
+			rp.scale[a] = 1
+		}
+	}
 	if rp.pp == d.P {
 		rp.xp = d.X
 	} else {
@@ -268,8 +276,8 @@ func newReplicator(sc *Scores, est Estimator, target Estimand, seed uint64) *rep
 
 type bootWorkspace struct {
 	fw, fwp []float64
-	e       []float64
-	f1, f0  []float64
+	e, mu   []float64
+	delta   []float64
 }
 
 func (rp *replicator) workspace() *bootWorkspace {
@@ -277,12 +285,11 @@ func (rp *replicator) workspace() *bootWorkspace {
 	ws := &bootWorkspace{fw: make([]float64, n)}
 	if rp.est.usesScores() {
 		ws.e = make([]float64, n)
+		ws.mu = make([]float64, n)
+		ws.delta = make([]float64, rp.pp)
 		if rp.npin > 0 {
 			ws.fwp = make([]float64, n)
 		}
-	}
-	if rp.est == AIPW {
-		ws.f1, ws.f0 = make([]float64, n), make([]float64, n)
 	}
 	return ws
 }
@@ -316,6 +323,8 @@ func (rp *replicator) run(b int, ws *bootWorkspace) (float64, error) {
 		return 0, errors.New("the resample has units of one arm only")
 	}
 	var e []float64
+	var score func(i int) float64
+	var err error
 	if rp.est.usesScores() {
 		fwp := fw
 		if rp.npin > 0 {
@@ -328,8 +337,10 @@ func (rp *replicator) run(b int, ws *bootWorkspace) (float64, error) {
 				}
 			}
 		}
+		// Warm start at the full-sample β, whose fitted probabilities are
+		// the full-sample scores: the first Newton pass needs no exp.
 		o := sc.opts
-		o.lean, o.stepTol = true, 1e-4
+		o.lean, o.stepTol, o.startMu, o.scale, o.muOut = true, 1e-4, sc.E, rp.scale, ws.mu
 		fit, err := fitLogistic(rp.xp, n, rp.pp, d.T, fwp, rp.start, o)
 		if err != nil {
 			return 0, fmt.Errorf("propensity refit: %w", err)
@@ -338,20 +349,34 @@ func (rp *replicator) run(b int, ws *bootWorkspace) (float64, error) {
 			return 0, fmt.Errorf("propensity refit did not converge in %d iterations (separation in the resample?)", fit.iterations)
 		}
 		// Scores where they are used (fw > 0); pinned units keep 0 or 1.
-		e = ws.e
-		for i, f := range fw {
-			switch {
-			case f == 0:
-				e[i] = 0.5 // unused: the unit is not in the resample
-			case rp.npin > 0 && rp.pinned[i]:
-				e[i] = sc.E[i]
-			default:
-				row := rp.xp[i*rp.pp : (i+1)*rp.pp]
-				var eta float64
-				for j, v := range row {
-					eta += v * fit.beta[j]
+		// From μ at the last evaluated β and the final step Δ (below 1e-4
+		// in scaled units): e = μ + μ(1 − μ)·x'Δ, exact to O(|x'Δ|²).
+		delta := ws.delta
+		for j := range delta {
+			delta[j] = fit.beta[j] - fit.muBeta[j]
+		}
+		mu := ws.mu
+		score = func(i int) float64 {
+			if rp.npin > 0 && rp.pinned[i] {
+				return sc.E[i]
+			}
+			row := rp.xp[i*rp.pp : (i+1)*rp.pp]
+			dl := delta[:len(row)]
+			var s float64
+			for j, v := range row {
+				s += v * dl[j]
+			}
+			m := mu[i]
+			return m + m*(1-m)*s
+		}
+		if rp.est != AIPW {
+			e = ws.e
+			for i, f := range fw {
+				if f == 0 {
+					e[i] = 0.5 // unused: the unit is not in the resample
+				} else {
+					e[i] = score(i)
 				}
-				e[i] = sigmoid(eta)
 			}
 		}
 	}
@@ -362,12 +387,12 @@ func (rp *replicator) run(b int, ws *bootWorkspace) (float64, error) {
 			return 0, err
 		}
 		oc = &outcomes{m1: m1, m0: m0}
-		if rp.est == AIPW {
-			oc.f1, oc.f0 = predictInto(ws.f1, d, m1, fw), predictInto(ws.f0, d, m0, fw)
-		}
 	}
-	out, err := evaluate(sc, rp.est, rp.target, e, oc, fw, false)
-	if err != nil {
+	var out estOut
+	if rp.est == AIPW {
+		// Scores computed in the same pass, each unit's own-arm prediction only.
+		out = aipwFromModels(d, score, oc.m1, oc.m0, rp.target, fw)
+	} else if out, err = evaluate(sc, rp.est, rp.target, e, oc, fw, false); err != nil {
 		return 0, err
 	}
 	if math.IsNaN(out.value) || math.IsInf(out.value, 0) {

@@ -78,6 +78,20 @@ func crossProducts(X []float64, n, p int, w, z []float64) (xtwx, xtz []float64) 
 // subBlock float64s stay in the core's cache.
 const subBlock = 256
 
+// scratch recycles the transposition buffers of the cross-product kernels
+// (their contents are always written before being read), so that repeated
+// fits — a bootstrap runs thousands — do not allocate them each time.
+var scratch sync.Pool
+
+func getScratch(n int) *[]float64 {
+	if b, ok := scratch.Get().(*[]float64); ok && cap(*b) >= n {
+		*b = (*b)[:n]
+		return b
+	}
+	b := make([]float64, n)
+	return &b
+}
+
 // blockCross is the hot loop of every fit: over row blocks in parallel it
 // asks rowFn for each row's weight w_i, right-hand value z_i and a scalar to
 // sum (e.g. a deviance contribution), and accumulates
@@ -94,7 +108,9 @@ func blockCross(X []float64, n, p int, rowFn func(i int, row []float64) (w, z, e
 	parts := make([][]float64, count)
 	parallelChunks(n, func(k, lo, hi int) {
 		acc := make([]float64, p*p+p+1)
-		bt := make([]float64, p*subBlock)
+		btp := getScratch(p * subBlock)
+		defer scratch.Put(btp)
+		bt := *btp
 		g := acc[p*p : p*p+p]
 		var ex float64
 		// Rows of weight 0 (for example units outside a bootstrap

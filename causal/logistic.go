@@ -18,6 +18,7 @@ type logitFit struct {
 	iterations int
 	converged  bool
 	maxStdCoef float64 // largest |coef × column RMS|, a divergence signal
+	muBeta     []float64 // lean fits: the β at which muOut was filled
 }
 
 // logitOptions tune the propensity fit.
@@ -35,6 +36,17 @@ type logitOptions struct {
 	// probabilities and no covariance (fit.e, fit.cov nil, fit.deviance
 	// NaN); the caller computes the scores it needs.
 	lean bool
+	// startMu (lean fits only) holds the fitted probabilities at start, so
+	// the first pass needs no exponential; scale (optional, without ridge)
+	// the column scales of a previous fit of the same design, saving a pass.
+	startMu []float64
+	scale   []float64
+	// muOut (lean fits only, length n) receives μ_i at the last β where the
+	// data were evaluated (fit.muBeta), for the rows with fw > 0: the caller
+	// gets the final scores without another pass of exponentials, as
+	// μ_i + μ_i(1 − μ_i)·x_i'(β − muBeta) (the last step is below stepTol,
+	// so the neglected term is of order stepTol², like Newton's own error).
+	muOut []float64
 }
 
 func sigmoid(x float64) float64 {
@@ -79,7 +91,9 @@ func fitLogistic(X []float64, n, p int, t, fw, start []float64, o logitOptions) 
 		o.stepTol = 1e-7
 	}
 	scale := make([]float64, p)
-	{
+	if len(o.scale) == p && o.ridge == 0 {
+		copy(scale, o.scale) // only conditions the solves (no penalty to scale)
+	} else {
 		sq := make([]float64, p)
 		var sw float64
 		for i := 0; i < n; i++ {
@@ -137,7 +151,15 @@ func fitLogistic(X []float64, n, p int, t, fw, start []float64, o logitOptions) 
 
 	// evaluate computes, in one pass over the data, the penalised deviance at
 	// b, the information X'WX + λS² and the score X'fw(T − μ) − λS²b.
+	known := o.lean && len(o.startMu) == n && start != nil // μ at the first b is given
+	var muBeta []float64
+	record := o.lean && len(o.muOut) == n
 	evaluate := func(b []float64) (dev float64, info, grad []float64) {
+		first := known
+		known = false
+		if record {
+			muBeta = append(muBeta[:0], b...)
+		}
 		info, grad, dev = blockCross(X, n, p, func(i int, row []float64) (float64, float64, float64) {
 			f := 1.0
 			if fw != nil {
@@ -145,9 +167,17 @@ func fitLogistic(X []float64, n, p int, t, fw, start []float64, o logitOptions) 
 					return 0, 0, 0 // a unit with frequency weight 0 contributes nothing
 				}
 			}
+			if first {
+				mu := o.startMu[i]
+				if record {
+					o.muOut[i] = mu
+				}
+				return f * mu * (1 - mu), f * (t[i] - mu), 0
+			}
 			var e float64
+			bb := b[:len(row)]
 			for j, v := range row {
-				e += v * b[j]
+				e += v * bb[j]
 			}
 			// One exponential serves μ = σ(e) and log(1 + exp(e)).
 			ex := math.Exp(-math.Abs(e))
@@ -160,6 +190,9 @@ func fitLogistic(X []float64, n, p int, t, fw, start []float64, o logitOptions) 
 				mu = ex / (1 + ex)
 			} else {
 				sp += e
+			}
+			if record {
+				o.muOut[i] = mu
 			}
 			return f * mu * (1 - mu), f * (t[i] - mu), f * (sp - t[i]*e)
 		})
@@ -240,6 +273,7 @@ func fitLogistic(X []float64, n, p int, t, fw, start []float64, o logitOptions) 
 	}
 	if o.lean {
 		fit.beta = beta
+		fit.muBeta = muBeta
 		fit.deviance = math.NaN()
 		for _, b := range beta {
 			if math.IsNaN(b) || math.IsInf(b, 0) {

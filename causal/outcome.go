@@ -21,6 +21,10 @@ type olsFit struct {
 	// its model, with their constant value.
 	aliased    []int
 	aliasValue []float64
+	// sumX is Σ w x over the arm's units (row 0 of X_a'WX_a); sumY is
+	// Σ w y (the intercept entry of X_a'Wy).
+	sumX []float64
+	sumY float64
 }
 
 // cov is the classical OLS covariance σ²(X_a'X_a)^{-1} (R's vcov(lm)).
@@ -73,7 +77,9 @@ func armCross(d *Design, fw []float64) (acc1, acc0 []float64) {
 	parts := make([][]float64, count)
 	parallelChunks(d.N, func(k, lo, hi int) {
 		acc := make([]float64, 2*stride)
-		buf := make([]float64, 2*p*subBlock)
+		bufp := getScratch(2 * p * subBlock)
+		defer scratch.Put(bufp)
+		buf := *bufp
 		var cnt [2]int
 		flush := func(a int) {
 			m := cnt[a]
@@ -144,7 +150,7 @@ func solveOLS(d *Design, acc []float64, arm string, t float64, fw []float64, wit
 	// model (coefficient 0, the intercept absorbing the constant), as R's lm
 	// aliases them. Predictions for units with another value of such a term
 	// are extrapolation, reported by the caller.
-	m := &olsFit{arm: arm, beta: make([]float64, p), n: n, p: p}
+	m := &olsFit{arm: arm, beta: make([]float64, p), n: n, p: p, sumX: append([]float64(nil), xtx[:p]...), sumY: xty[0]}
 	keep := []int{0}
 	for j := 1; j < p; j++ {
 		sx, sxx := xtx[j], xtx[j*p+j]

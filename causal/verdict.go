@@ -89,10 +89,41 @@ type positivity struct {
 	sup                         *Support
 }
 
+// supportBand is the part of Support the verdict needs — score ranges by
+// arm, the common-support band and the units outside it — without the
+// histogram, extreme shares and profile (O(n), no allocation beyond the
+// outside flags).
+func (sc *Scores) supportBand() *Support {
+	d := sc.Design
+	s := &Support{Scores: sc, Treated: d.Treated, Control: d.Control}
+	s.TreatedRange = Interval{math.Inf(1), math.Inf(-1)}
+	s.ControlRange = s.TreatedRange
+	for i, e := range sc.E {
+		r := &s.ControlRange
+		if d.T[i] == 1 {
+			r = &s.TreatedRange
+		}
+		r.Lo, r.Hi = math.Min(r.Lo, e), math.Max(r.Hi, e)
+	}
+	s.Band = Interval{math.Max(s.TreatedRange.Lo, s.ControlRange.Lo), math.Min(s.TreatedRange.Hi, s.ControlRange.Hi)}
+	s.Outside = make([]bool, d.N)
+	for i, e := range sc.E {
+		if e < s.Band.Lo || e > s.Band.Hi || s.Band.Lo > s.Band.Hi {
+			s.Outside[i] = true
+			if d.T[i] == 1 {
+				s.OutsideTreated++
+			} else {
+				s.OutsideControl++
+			}
+		}
+	}
+	return s
+}
+
 func (sc *Scores) positivity(o VerdictOptions, cells []*Cells) *positivity {
 	o = o.withDefaults()
 	pf := &positivity{reasons: []string{}, notes: []string{}}
-	sup := sc.Support()
+	sup := sc.supportBand()
 	pf.sup = sup
 	d := sc.Design
 	pf.controlsAlone = make([]bool, d.N)

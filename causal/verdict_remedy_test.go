@@ -75,3 +75,17 @@ func TestVerdictRemedyAdequate(t *testing.T) {
 		t.Errorf("limited: %s %+v", l.Status, l.Remedies)
 	}
 }
+// supportBand agrees with Support on what the verdict uses.
+func TestSupportBandAgrees(t *testing.T) {
+	for _, sc := range []*Scores{nswStudy().Propensity(), waterStudy().Propensity()} {
+		a, b := sc.Support(), sc.supportBand()
+		if a.Band != b.Band || a.TreatedRange != b.TreatedRange || a.ControlRange != b.ControlRange || a.OutsideTreated != b.OutsideTreated || a.OutsideControl != b.OutsideControl {
+			t.Errorf("%+v vs %+v", a.Band, b.Band)
+		}
+		for i := range a.Outside {
+			if a.Outside[i] != b.Outside[i] {
+				t.Fatal(i)
+			}
+		}
+	}
+}

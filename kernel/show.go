@@ -65,12 +65,12 @@ type htmler interface{ HTML() string }
 // cell of its own would need.
 //
 // One copy per session means the copy lives in one cell's output. Clearing
-// that output, or re-running that cell, in the same session leaves the live
-// page drawing (the library stays loaded there), but a notebook saved then
-// holds no copy: when it is opened again its charts show their static
-// pictures until a cell showing a chart runs in the new kernel session (or
-// the notebook is run again from the top). `counterpart run` always runs from
-// a fresh kernel, so its exports hold exactly one copy.
+// that output, or re-running that cell, in the same session leaves the open
+// page drawing (the library stays loaded in it), but a notebook saved then
+// holds no copy: opened again, its charts show their static pictures (with a
+// note) until a chart cell runs in a new kernel session — restart the kernel
+// and run the cell, or run all cells. `counterpart run` always starts a fresh
+// kernel, so its exports hold exactly one copy.
 //
 // Outside a notebook Show prints the text form to standard output and, when
 // COUNTERPART_HTML is set to a path, (re)writes an HTML page there with

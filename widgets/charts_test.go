@@ -97,7 +97,7 @@ func checkFallback(t *testing.T, name string, pic []byte) {
 }
 
 func TestChartsOfWaterScenario(t *testing.T) {
-	r := resultsOf(t, waterStudy(), "district", "lot_m2", "pool")
+	r := waterResults(t)
 	for _, b := range chartBuilders {
 		t.Run(b.name, func(t *testing.T) {
 			c, err := b.build(r)
@@ -121,7 +121,7 @@ func TestChartsOfWaterScenario(t *testing.T) {
 // the scores: every unit in exactly one bin of its arm, controls drawn below
 // the axis, and the band shaded where the support result puts it.
 func TestMirroredHistogramCounts(t *testing.T) {
-	r := resultsOf(t, waterStudy(), "district", "lot_m2", "pool")
+	r := waterResults(t)
 	h, err := mirroredBins(r.Support)
 	if err != nil {
 		t.Fatal(err)
@@ -183,7 +183,7 @@ func TestMirroredHistogramCounts(t *testing.T) {
 // same reflection at 0 and 1 (Silverman 1986, §2.10), and that it integrates
 // to one over [0, 1].
 func TestBinnedKDEMatchesDirectSum(t *testing.T) {
-	r := resultsOf(t, waterStudy(), "district", "lot_m2", "pool")
+	r := waterResults(t)
 	e, tr := r.Scores.E, r.Scores.Design.T
 	var xs []float64
 	counts := make([]float64, fineBins)
@@ -242,7 +242,7 @@ func TestSilvermanBandwidth(t *testing.T) {
 // scenario (harbour has no audits) carries the red border and its label, and
 // that the colour value is the share treated.
 func TestHeatmapMarksViolations(t *testing.T) {
-	r := resultsOf(t, waterStudy(), "district", "lot_m2", "pool")
+	r := waterResults(t)
 	c, err := CellsHeatmap(r.Cells2)
 	if err != nil {
 		t.Fatal(err)

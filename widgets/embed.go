@@ -256,7 +256,7 @@ function boot(extra) {
     if (!window.echarts || typeof window.echarts.init !== "function") {
       waited += 50;
       if (waited > waitMs) {
-        note("Interactive chart unavailable: the ECharts library did not load, so the static picture is shown. Run \"counterpart setup\" and re-run the cell.");
+        note("Interactive chart unavailable: the ECharts library did not load, so the static picture is shown. Restart the kernel and run the cell again (run \"counterpart setup\" first if the library is missing).");
         return;
       }
       setTimeout(attempt, 50);
@@ -309,8 +309,9 @@ function boot(extra) {
 // window.echarts whether or not RequireJS (or another AMD/CommonJS loader) is
 // on the page: the bundle runs inside a function whose parameters shadow
 // define, exports and module, so it takes its browser-global branch. It does
-// nothing when window.echarts already exists, so repeated copies (one per
-// notebook cell) cost only their size.
+// nothing when window.echarts already exists, so a repeated copy (one per
+// kernel session, or one per cell when the session cannot be told) costs only
+// its size.
 func LibraryScript(js []byte) string {
 	if len(js) == 0 {
 		return ""

@@ -70,7 +70,7 @@ func TestTableEscapesEveryString(t *testing.T) {
 }
 
 func TestCellsTableViolationsFirst(t *testing.T) {
-	r := resultsOf(t, waterStudy(), "district", "lot_m2", "pool")
+	r := waterResults(t)
 	tb := cellsTable(r.Cells2)
 	if len(tb.Rows) != len(r.Cells2.Rows) {
 		t.Fatalf("%d rows for %d cells", len(tb.Rows), len(r.Cells2.Rows))

@@ -19,6 +19,21 @@ const (
 	hostileLevel  = `</script><script>alert(1)</script>`
 )
 
+var (
+	waterOnce sync.Once
+	water     resultSet
+)
+
+// waterResults are the results of waterStudy, computed once per test run
+// (the views do not modify results).
+func waterResults(t testing.TB) resultSet {
+	waterOnce.Do(func() { water = waterResults(t) })
+	if water.Scores == nil {
+		t.Fatal("the water scenario results could not be built (see the first failure)")
+	}
+	return water
+}
+
 // waterStudy is the demo scenario shipped in testdata (simulated water audits).
 func waterStudy() *causal.Study {
 	return causal.Load("../testdata/water_audits.csv").Treat("audit").TreatedLevel("yes").Outcome("litres_per_day").
@@ -102,7 +117,11 @@ func resultsOf(t testing.TB, s *causal.Study, c1, c2, c3 string, alphas ...float
 		Effect: sc.Effect(causal.IPWNormalized, causal.ATE), Estimates: sc.Effects(causal.ATE, cells)}
 	r.Trimmed = sc.Trim(causal.Symmetric(0.05))
 	r.TrimmedEs = r.Trimmed.Effects(causal.ATE)
-	r.Bootstrap = sc.Bootstrap(context.Background(), causal.IPWNormalized, causal.ATE, causal.BootstrapOptions{Replicates: 12, Seed: 5})
+	reps := 12
+	if sc.Design.N > 100_000 {
+		reps = 4 // the chart's size does not depend on the number of replicates
+	}
+	r.Bootstrap = sc.Bootstrap(context.Background(), causal.IPWNormalized, causal.ATE, causal.BootstrapOptions{Replicates: reps, Seed: 5})
 	r.Sweep = sc.Sweep(causal.IPWNormalized, causal.ATE, alphas...)
 	r.Audit = sc.Extrapolation(causal.ATE)
 	r.Curve = r.Audit.Curve(c1)
@@ -132,7 +151,7 @@ func millionResults(t testing.TB) resultSet {
 	millionOnce.Do(func() {
 		f := syntheticFrame(t, 1_000_000, 11, "x", "west")
 		s := causal.FromSource(f).Treat("t").Outcome("y").Adjust("x", "g", "b")
-		million = resultsOf(t, s, "x", "g", "b", 0, 0.05, 0.1)
+		million = resultsOf(t, s, "x", "g", "b", 0, 0.1)
 	})
 	if million.Scores == nil {
 		t.Fatal("the 1e6-row study could not be built (see the first failure)")

@@ -58,7 +58,7 @@ func TestViewsEscapeHostileLabels(t *testing.T) {
 // in one output (several charts per cell) and across repeated renders of the
 // same result (a re-run cell).
 func TestViewIDsUnique(t *testing.T) {
-	r := resultsOf(t, waterStudy(), "district", "lot_m2", "pool")
+	r := waterResults(t)
 	var all strings.Builder
 	for _, x := range append(r.all(), r.Support, r.Support) {
 		all.WriteString(HTML(x))
@@ -143,7 +143,7 @@ func TestViewPassesThroughOtherValues(t *testing.T) {
 }
 
 func TestHeadlines(t *testing.T) {
-	r := resultsOf(t, waterStudy(), "district", "lot_m2", "pool")
+	r := waterResults(t)
 	cases := []struct {
 		x    any
 		want []string
@@ -181,7 +181,7 @@ func TestHeadlines(t *testing.T) {
 }
 
 func TestVerdictPanelCarriesCautions(t *testing.T) {
-	r := resultsOf(t, waterStudy(), "district", "lot_m2", "pool")
+	r := waterResults(t)
 	h := HTML(r.Verdict)
 	for _, want := range []string{"cp-violated", "cannot verify unconfoundedness", "covariates measured",
 		"local rules and licensed practice", "Remedy:", "not supported: ATE", "would drop"} {

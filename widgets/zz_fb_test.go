@@ -9,7 +9,7 @@ func TestZZFallbacks(t *testing.T) {
 	if os.Getenv("CP_FB") == "" {
 		t.Skip()
 	}
-	r := resultsOf(t, waterStudy(), "district", "lot_m2", "pool")
+	r := waterResults(t)
 	for _, b := range chartBuilders {
 		c, err := b.build(r)
 		if err != nil {

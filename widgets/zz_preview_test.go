@@ -63,7 +63,7 @@ func TestZZPreview(t *testing.T) {
 		xs = []any{h.Cells2, h.Balance, h.Curve, h.Scores}
 	}
 	if os.Getenv("CP_ALL") != "" {
-		r := resultsOf(t, waterStudy(), "district", "lot_m2", "pool")
+		r := waterResults(t)
 		h := resultsOf(t, hostileStudy(t), hostileColumn, "g", "b")
 		xs = append(r.all(), h.all()...)
 	}

@@ -228,3 +228,72 @@ func TestFindModuleRoot(t *testing.T) {
 		t.Fatalf("from another module: %s, %v; want %s", r, err, root)
 	}
 }
+
+func notebookWith(t *testing.T, cells ...map[string]any) []byte {
+	t.Helper()
+	data, err := json.Marshal(map[string]any{"cells": cells, "nbformat": 4, "nbformat_minor": 5, "metadata": map[string]any{}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return data
+}
+
+func markdown(src ...string) map[string]any {
+	return map[string]any{"cell_type": "markdown", "source": src, "metadata": map[string]any{}}
+}
+
+func TestMayHoldMath(t *testing.T) {
+	output := func(mime, text string) map[string]any {
+		return map[string]any{"cell_type": "code", "source": "", "outputs": []any{
+			map[string]any{"output_type": "display_data", "data": map[string]any{mime: text}}}}
+	}
+	cases := []struct {
+		name string
+		nb   []byte
+		want bool
+	}{
+		{"a price is not math", notebookWith(t, markdown("earnings of **$1,794**"), markdown("## the $1,794 benchmark")), false},
+		{"escaped dollars", notebookWith(t, markdown(`from \$5 to \$10`)), false},
+		{"inline math", notebookWith(t, markdown("the score $e(x)$ is"), markdown("plain")), true},
+		{"inline math across source lines", notebookWith(t, markdown("the score $e(x)\n", "= P(T=1|x)$")), true},
+		{"display math", notebookWith(t, markdown("$$\\hat\\tau$$")), true},
+		{"bracket math", notebookWith(t, markdown(`\[ a \]`)), true},
+		{"environment", notebookWith(t, markdown(`\begin{align} a \end{align}`)), true},
+		{"latex output", notebookWith(t, output("text/latex", "x")), true},
+		{"markdown output with math", notebookWith(t, output("text/markdown", "$a$ and $b$")), true},
+		{"html output with dollars", notebookWith(t, output("text/html", "$1 and $2")), false},
+		{"code cell with dollars", notebookWith(t, map[string]any{"cell_type": "code", "source": "a := \"$x$\""}), false},
+		{"unreadable notebook", []byte("{"), true},
+	}
+	for _, c := range cases {
+		if got := mayHoldMath(c.nb); got != c.want {
+			t.Errorf("%s: mayHoldMath = %v, want %v", c.name, got, c.want)
+		}
+	}
+}
+
+func TestSelfContainedExportOptions(t *testing.T) {
+	old := requireJSPaths
+	t.Cleanup(func() { requireJSPaths = old })
+	js := filepath.Join(t.TempDir(), "require.min.js")
+	if err := os.WriteFile(js, []byte("var requirejs;"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	requireJSPaths = []string{filepath.Join(t.TempDir(), "absent.js"), js}
+
+	opts, notes := selfContainedExport(notebookWith(t, markdown("no math, $5 only")))
+	want := []string{
+		"--HTMLExporter.require_js_url=data:text/javascript;base64,dmFyIHJlcXVpcmVqczs=", // base64 of "var requirejs;"
+		"--HTMLExporter.mathjax_url=" + noMathJaxURL,
+	}
+	if strings.Join(opts, "\n") != strings.Join(want, "\n") || len(notes) != 0 {
+		t.Fatalf("options %q, notes %q; want %q and no notes", opts, notes, want)
+	}
+
+	// Math keeps nbconvert's MathJax link; a missing RequireJS keeps its link too. Both are said.
+	requireJSPaths = []string{filepath.Join(t.TempDir(), "absent.js")}
+	opts, notes = selfContainedExport(notebookWith(t, markdown("$a$ and $b$")))
+	if len(opts) != 0 || len(notes) != 2 || !strings.Contains(notes[0], "libjs-requirejs") || !strings.Contains(notes[1], "MathJax") {
+		t.Fatalf("options %q, notes %q; want none and two notes", opts, notes)
+	}
+}

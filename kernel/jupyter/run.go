@@ -2,6 +2,7 @@ package jupyter
 
 import (
 	"context"
+	"encoding/base64"
 	"encoding/json"
 	"fmt"
 	"html"
@@ -134,12 +135,16 @@ func Run(ctx context.Context, o RunOptions) (*RunResult, error) {
 		}
 	}
 	if o.HTML != "" {
-		out, err := exportHTML(ctx, jupyterCmd, executed, o.HTML)
+		opts, notes := selfContainedExport(data)
+		out, err := exportHTML(ctx, jupyterCmd, executed, o.HTML, opts)
 		if err != nil {
 			return nil, err
 		}
 		res.HTML = out
 		fmt.Fprintf(o.Out, "HTML written to %s\n", out)
+		for _, n := range notes {
+			fmt.Fprintf(o.Out, "note: %s\n", n)
+		}
 	}
 	if len(cellErrs) > 0 {
 		return res, cellErrs
@@ -164,8 +169,102 @@ func checkKernelInstalled(ctx context.Context, jupyterCmd, name string) error {
 	return nil
 }
 
-// exportHTML converts the executed notebook to HTML at out.
-func exportHTML(ctx context.Context, jupyterCmd, executed, out string) (string, error) {
+// requireJSPaths are where Debian's libjs-requirejs (a dependency of its
+// jupyter-nbconvert) places RequireJS; nbconvert's HTML template links it.
+var requireJSPaths = []string{"/usr/share/javascript/requirejs/require.min.js"}
+
+const aptRequireJS = "apt-get install -y libjs-requirejs"
+
+// noMathJaxURL replaces MathJax in an export without math: an empty script,
+// so the page loads nothing from outside (the template's MathJax settings
+// check window.MathJax and do nothing without it).
+const noMathJaxURL = "data:text/javascript,//%20no%20math%20in%20this%20notebook"
+
+// selfContainedExport returns nbconvert options that keep the HTML export
+// free of references to files outside it, and notes on what could not be
+// kept inside. nbconvert's HTML template links RequireJS and MathJax (to
+// file:///usr/share/javascript on Debian, to a CDN elsewhere):
+//   - RequireJS (26 kB) is inlined as a data: URL, so outputs that expect an
+//     AMD loader find it as in the notebook;
+//   - MathJax (a folder of files, loaded piecemeal) cannot be inlined; it is
+//     left out when no markdown holds math, and linked as nbconvert does
+//     otherwise.
+func selfContainedExport(notebook []byte) (opts, notes []string) {
+	found := false
+	for _, p := range requireJSPaths {
+		js, err := os.ReadFile(p)
+		if err != nil || len(js) == 0 {
+			continue
+		}
+		opts = append(opts, "--HTMLExporter.require_js_url=data:text/javascript;base64,"+base64.StdEncoding.EncodeToString(js))
+		found = true
+		break
+	}
+	if !found {
+		notes = append(notes, "RequireJS not found at "+strings.Join(requireJSPaths, ", ")+
+			", so the HTML links it where nbconvert's template says ("+aptRequireJS+" to inline it)")
+	}
+	if mayHoldMath(notebook) {
+		notes = append(notes, "the notebook's markdown holds math, so the HTML links MathJax where nbconvert's template says; "+
+			"math shows as TeX source where that is not reachable")
+	} else {
+		opts = append(opts, "--HTMLExporter.mathjax_url="+noMathJaxURL)
+	}
+	return opts, notes
+}
+
+// mayHoldMath reports whether a markdown cell or a markdown/LaTeX output of
+// the notebook may hold math that MathJax would typeset: a LaTeX output,
+// "$$", "\(", "\[", "\begin{", or two unescaped "$" in one text (one "$", as
+// in a price, is not math). It errs towards true; an unreadable notebook
+// counts as holding math.
+func mayHoldMath(notebook []byte) bool {
+	var nb struct {
+		Cells []struct {
+			CellType string          `json:"cell_type"`
+			Source   json.RawMessage `json:"source"`
+			Outputs  []struct {
+				Data map[string]json.RawMessage `json:"data"`
+			} `json:"outputs"`
+		} `json:"cells"`
+	}
+	if err := json.Unmarshal(notebook, &nb); err != nil {
+		return true
+	}
+	for _, c := range nb.Cells {
+		if c.CellType == "markdown" && textHoldsMath(multiline(c.Source)) {
+			return true
+		}
+		for _, o := range c.Outputs {
+			if _, ok := o.Data["text/latex"]; ok {
+				return true
+			}
+			if md, ok := o.Data["text/markdown"]; ok && textHoldsMath(multiline(md)) {
+				return true
+			}
+		}
+	}
+	return false
+}
+
+func textHoldsMath(s string) bool {
+	for _, d := range []string{"$$", `\(`, `\[`, `\begin{`} {
+		if strings.Contains(s, d) {
+			return true
+		}
+	}
+	dollars := 0
+	for i := 0; i < len(s); i++ {
+		if s[i] == '$' && (i == 0 || s[i-1] != '\\') {
+			dollars++
+		}
+	}
+	return dollars >= 2
+}
+
+// exportHTML converts the executed notebook to HTML at out, passing extra
+// options to nbconvert.
+func exportHTML(ctx context.Context, jupyterCmd, executed, out string, extra []string) (string, error) {
 	out, err := filepath.Abs(out)
 	if err != nil {
 		return "", err
@@ -175,8 +274,8 @@ func exportHTML(ctx context.Context, jupyterCmd, executed, out string) (string, 
 		return "", err
 	}
 	base := strings.TrimSuffix(filepath.Base(out), ".html")
-	if _, err := output(ctx, filepath.Dir(executed), nil, jupyterCmd, "nbconvert", "--to", "html",
-		"--output-dir", dir, "--output", base, executed); err != nil {
+	args := append([]string{"nbconvert", "--to", "html", "--output-dir", dir, "--output", base}, extra...)
+	if _, err := output(ctx, filepath.Dir(executed), nil, jupyterCmd, append(args, executed)...); err != nil {
 		return "", fmt.Errorf("exporting HTML: %w", err)
 	}
 	written := filepath.Join(dir, base+".html")
