@@ -145,7 +145,7 @@ func (sc *Scores) Bootstrap(ctx context.Context, est Estimator, target Estimand,
 				if b >= o.Replicates {
 					return
 				}
-				v, err := rp.run(b, ws)
+				v, err := rp.safeRun(b, ws)
 				results[w] = append(results[w], result{b, v, err})
 				mu.Lock()
 				done++
@@ -174,10 +174,10 @@ func (sc *Scores) Bootstrap(ctx context.Context, est Estimator, target Estimand,
 		bs.Replicates = append(bs.Replicates, r.v)
 	}
 	bs.Partial = bs.Done < o.Replicates
-	bs.summarise()
 	if bs.Partial {
 		bs.Notes = append(bs.Notes, fmt.Sprintf("PARTIAL: cancelled after %d of %d replicates; the summaries use the replicates done", bs.Done, o.Replicates))
 	}
+	bs.summarise()
 	if bs.Failed > 0 {
 		bs.Notes = append(bs.Notes, fmt.Sprintf("%d replicate%s failed and %s left out (the intervals are conditional on success); first: %s",
 			bs.Failed, plural(bs.Failed, "", "s"), plural(bs.Failed, "is", "are"), bs.FailReason))
@@ -302,6 +302,17 @@ func replicateRand(seed uint64, b int) *rand.Rand {
 	binary.LittleEndian.PutUint64(key[8:], uint64(b))
 	copy(key[16:], "counterpart/boot")
 	return rand.New(rand.NewChaCha8(key))
+}
+
+// safeRun is run with a panic turned into a failed replicate (nothing
+// panics out of the public API).
+func (rp *replicator) safeRun(b int, ws *bootWorkspace) (v float64, err error) {
+	defer func() {
+		if r := recover(); r != nil {
+			v, err = 0, fmt.Errorf("internal error: %v", r)
+		}
+	}()
+	return rp.run(b, ws)
 }
 
 // run computes replicate b.

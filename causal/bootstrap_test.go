@@ -159,3 +159,37 @@ func TestBootstrapEdgeCases(t *testing.T) {
 		t.Errorf("separated data: bootstrap SE %g vs sandwich %g", bs.SE, e.SE)
 	}
 }
+
+// With a ridge penalty the stacked sandwich uses the penalised information
+// (X'WX + λS²)⁻¹ and the penalised score equations; its SE must agree with
+// the bootstrap, whose replicates refit with the same penalty (a consistency
+// check of the whole; the per-unit penalty share −(λ/n)S²β itself only
+// shifts every ψ_i by a constant and changes the SE by a negligible amount).
+func TestRidgeSandwichAgreesWithBootstrap(t *testing.T) {
+	sc := nswStudy().Propensity(Ridge(20))
+	if sc.Err() != nil {
+		t.Fatal(sc.Err())
+	}
+	plain := nswStudy().Propensity()
+	for _, c := range []struct {
+		est Estimator
+		t   Estimand
+	}{{IPWNormalized, ATE}, {OverlapWeighted, ATO}} {
+		e := sc.Effect(c.est, c.t)
+		if e.Value == plain.Effect(c.est, c.t).Value {
+			t.Fatal("ridge changed nothing")
+		}
+		bs := sc.Bootstrap(context.Background(), c.est, c.t, BootstrapOptions{Replicates: 1000, Seed: 11})
+		if r := bs.SE / e.SE; bs.Err() != nil || r < 0.9 || r > 1.1 {
+			t.Errorf("%s ridge: sandwich SE %.2f, bootstrap %.2f (%v)", c.est, e.SE, bs.SE, bs.Err())
+		}
+	}
+}
+
+func TestTrimmedBootstrap(t *testing.T) {
+	tr := waterStudy().Propensity().Trim(Symmetric(0.1))
+	bs := tr.Bootstrap(context.Background(), IPWNormalized, ATE, BootstrapOptions{Replicates: 50, Seed: 1})
+	if bs.Err() != nil || !strings.Contains(bs.Population, "2793 kept units") || bs.Estimate != tr.Effect(IPWNormalized, ATE).Value {
+		t.Errorf("%v %q", bs.Err(), bs.Population)
+	}
+}

@@ -320,7 +320,11 @@ func (sc *Scores) Effect(est Estimator, target Estimand, cells ...*Cells) *Effec
 	eff.MuCov = [3]float64{out.v11, out.v00, out.v10}
 	eff.SE = out.se()
 	if math.IsNaN(eff.SE) {
-		eff.flag("se_unavailable", "the standard error could not be computed: the propensity model's information matrix is singular (separation); use Scores.Bootstrap, or trim")
+		why := "the propensity model's information matrix could not be inverted (separation); use Scores.Bootstrap, or trim"
+		if !est.usesScores() {
+			why = "too few units for a variance (each arm, and the target population, needs at least 2)"
+		}
+		eff.flag("se_unavailable", "the standard error could not be computed: "+why)
 	} else {
 		eff.CI95 = Interval{eff.Value - z975*eff.SE, eff.Value + z975*eff.SE}
 	}

@@ -166,3 +166,17 @@ func ExampleVerdict_remedies() {
 	// overlap_weights: drops 0 treated, 0 control
 	// trim: drops 123 treated, 757 control
 }
+
+func ExampleScores_WithWeights() {
+	sc := water().Propensity()
+	w := make([]float64, sc.Design.N) // weights from elsewhere: here, ATT weights capped at 5
+	for i, e := range sc.E {
+		w[i] = 1
+		if sc.Design.T[i] == 0 {
+			w[i] = min(e/(1-e), 5)
+		}
+	}
+	ww := sc.WithWeights(w, "capped ATT weights")
+	fmt.Printf("%s: control ESS %.0f, largest |SMD| %.3f\n", ww.Label, ww.ESSControl, ww.Balance().MaxAbsSMD())
+	// Output: capped ATT weights: control ESS 681, largest |SMD| 0.236
+}

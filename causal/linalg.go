@@ -101,8 +101,9 @@ func getScratch(n int) *[]float64 {
 // Each block of rows is copied, scaled by √w_i and transposed into a small
 // per-worker buffer so that every entry of X'WX is a unit-stride dot product
 // (gonum's floats.Dot, SIMD); only the upper triangle is computed; rows with
-// w_i ≤ 0 are left out of X'WX. No allocation per row. Block boundaries depend on n only and partial sums are
-// reduced in block order, so results are identical on any number of cores.
+// w_i ≤ 0 are left out of X'WX. No allocation per row. Block boundaries
+// depend on n only and partial sums are reduced in block order, so results
+// are identical on any number of cores.
 func blockCross(X []float64, n, p int, rowFn func(i int, row []float64) (w, z, extra float64)) (xtwx, xtz []float64, extra float64) {
 	_, count := chunking(n)
 	parts := make([][]float64, count)

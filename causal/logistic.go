@@ -17,7 +17,7 @@ type logitFit struct {
 	nullDev    float64
 	iterations int
 	converged  bool
-	maxStdCoef float64 // largest |coef × column RMS|, a divergence signal
+	maxStdCoef float64   // largest |coef × column RMS|, a divergence signal
 	muBeta     []float64 // lean fits: the β at which muOut was filled
 }
 

@@ -1,6 +1,7 @@
 package causal
 
 import (
+	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -314,6 +315,24 @@ func (t *Trimmed) Effects(target Estimand, cells ...*Cells) *Estimates {
 		t.mark(e)
 	}
 	return es
+}
+
+// Bootstrap runs the bootstrap on the kept units (see Scores.Bootstrap). The
+// kept sample is taken as given, as in Crump et al. (2009): the trimming is
+// not redone in each replicate.
+func (t *Trimmed) Bootstrap(ctx context.Context, est Estimator, target Estimand, o BootstrapOptions) *Bootstrap {
+	if err := t.Err(); err != nil {
+		nan := math.NaN()
+		return &Bootstrap{Estimator: est, Estimand: target, err: err, Estimate: nan, SE: nan, Bias: nan, Percentile: Interval{nan, nan}, Normal: Interval{nan, nan}}
+	}
+	bs := t.Scores.Bootstrap(ctx, est, target, o)
+	if t.DroppedTreated+t.DroppedControl > 0 {
+		e := &Effect{Estimand: target}
+		t.mark(e)
+		bs.Population = e.Population
+		bs.Notes = append(bs.Notes, t.Population+"; the kept sample is taken as given (trimming is not redone per replicate)")
+	}
+	return bs
 }
 
 // Weights are the estimand's weights on the kept units.

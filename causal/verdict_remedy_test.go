@@ -75,6 +75,7 @@ func TestVerdictRemedyAdequate(t *testing.T) {
 		t.Errorf("limited: %s %+v", l.Status, l.Remedies)
 	}
 }
+
 // supportBand agrees with Support on what the verdict uses.
 func TestSupportBandAgrees(t *testing.T) {
 	for _, sc := range []*Scores{nswStudy().Propensity(), waterStudy().Propensity()} {

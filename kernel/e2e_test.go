@@ -159,6 +159,7 @@ func TestE2ENotebooks(t *testing.T) {
 		}
 		t.Logf("%s executed and exported in %s", name, time.Since(t0).Round(100*time.Millisecond))
 		charts[name] = checkPage(t, ctx, browser, tmp, name, page)
+		checkOneLibrary(t, name, page, charts[name])
 		if name == "tour" && os.Getenv("COUNTERPART_SCREENSHOT") != "" {
 			shot, _ := filepath.Abs(os.Getenv("COUNTERPART_SCREENSHOT"))
 			if _, err := chromium(ctx, browser, tmp, "--window-size=1280,2400", "--virtual-time-budget=8000", "--screenshot="+shot, "file://"+page); err != nil {
@@ -174,7 +175,8 @@ func TestE2ENotebooks(t *testing.T) {
 		t.Errorf("the smoke notebook shows 2 charts; found %d chart containers", charts["smoke"])
 	}
 
-	// The classic Notebook UI (RequireJS loaded by the page) draws a trusted saved notebook's charts.
+	// The classic Notebook UI (RequireJS loaded by the page) draws a trusted saved notebook's charts;
+	// the second chart's cell holds no copy of ECharts and draws with the first one's.
 	if fileExistsE2E(filepath.Join(outDir, "smoke.ipynb")) {
 		checkLiveNotebook(t, ctx, browser, tmp, env, filepath.Join(outDir, "smoke.ipynb"), 2)
 	}
@@ -212,11 +214,42 @@ func TestE2ENotebooks(t *testing.T) {
 	}
 }
 
+// maxTourHTML bounds the exported tour. It holds eleven charts, each with its
+// option and fallback PNG (about 0.1 MB each), and the ECharts library once
+// per kernel session (1 MB); a copy per chart cell made it 11 MB.
+const maxTourHTML = 4 << 20
+
+// checkOneLibrary checks that an executed notebook's HTML carries the ECharts
+// library exactly once (once per kernel session, and `run` uses one), and
+// that the tour stays below maxTourHTML.
+func checkOneLibrary(t *testing.T, name, page string, charts int) {
+	t.Helper()
+	fi, err := os.Stat(page)
+	if err != nil {
+		t.Errorf("%s: %v", name, err)
+		return
+	}
+	raw, err := os.ReadFile(page)
+	if err != nil {
+		t.Errorf("%s: %v", name, err)
+		return
+	}
+	copies := strings.Count(string(raw), `data-cp-echarts="library"`)
+	t.Logf("%s: HTML is %.2f MB with %d copies of the ECharts library", name, float64(fi.Size())/(1<<20), copies)
+	if charts > 0 && copies != 1 {
+		t.Errorf("%s: %d copies of the ECharts library in the HTML; one kernel session should carry exactly 1", name, copies)
+	}
+	if name == "tour" && fi.Size() >= maxTourHTML {
+		t.Errorf("tour: the HTML is %d bytes, over the bound of %d", fi.Size(), maxTourHTML)
+	}
+}
+
 var (
 	containerRe = regexp.MustCompile(`<div class="cp-chart"[^>]*>`)
 	consoleRe   = regexp.MustCompile(`:CONSOLE[^\]]*\] "(.*)", source: (\S+)`)
-	// A resource the page would load from the network (plain hyperlinks are fine).
-	externalRe = regexp.MustCompile(`(?i)<(script|img|iframe|link|source|video|audio|embed)\b[^>]*\s(src|href)\s*=\s*["']?(https?:)?//`)
+	// A resource the page would load from the network or from a file outside
+	// it (plain hyperlinks are fine).
+	externalRe = regexp.MustCompile(`(?i)<(script|img|iframe|link|source|video|audio|embed)\b[^>]*\s(src|href)\s*=\s*["']?((https?:)?//|file:)`)
 )
 
 // consoleHook makes console.error calls recognisable in Chromium's log.

@@ -323,14 +323,20 @@ func extrapolationParts(a *causal.ExtrapolationAudit) []string {
 		parts = append(parts, tr.HTML())
 	}
 	var effects []*causal.Effect
-	for _, e := range []*causal.Effect{a.Full, a.Restricted} {
+	var labels []string
+	for k, e := range []*causal.Effect{a.Full, a.Restricted} {
 		if e != nil {
 			effects = append(effects, e)
+			labels = append(labels, []string{"regression adjustment, all target units",
+				fmt.Sprintf("regression adjustment, the %s supported units", formatCount(a.SupportedN))}[k])
 		}
 	}
 	if len(effects) > 0 {
-		parts = append(parts, estimatesTable(effects, "Regression adjustment over all target units, and over those whose predictions are supported").HTML(),
-			flagsHTML(estimateErrors(effects), nil))
+		t := estimatesTable(effects, "Regression adjustment over all target units, and over those whose predictions are supported")
+		for i := range t.Rows {
+			t.Rows[i].Cells[0].Text = labels[i]
+		}
+		parts = append(parts, t.HTML(), flagsHTML(estimateErrors(effects), nil))
 	}
 	return append(parts, cautionsHTML())
 }

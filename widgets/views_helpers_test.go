@@ -27,7 +27,7 @@ var (
 // waterResults are the results of waterStudy, computed once per test run
 // (the views do not modify results).
 func waterResults(t testing.TB) resultSet {
-	waterOnce.Do(func() { water = waterResults(t) })
+	waterOnce.Do(func() { water = resultsOf(t, waterStudy(), "district", "lot_m2", "pool") })
 	if water.Scores == nil {
 		t.Fatal("the water scenario results could not be built (see the first failure)")
 	}
