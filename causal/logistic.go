@@ -298,7 +298,8 @@ func fitLogistic(X []float64, n, p int, t, fw, start []float64, o logitOptions) 
 			}
 		}
 	}
-	eta := make([]float64, n)
+	fit.beta = beta
+	fit.e = make([]float64, n)
 	parallelChunks(n, func(_, lo, hi int) {
 		for i := lo; i < hi; i++ {
 			row := X[i*p : (i+1)*p]
@@ -306,14 +307,9 @@ func fitLogistic(X []float64, n, p int, t, fw, start []float64, o logitOptions) 
 			for j, v := range row {
 				e += v * beta[j]
 			}
-			eta[i] = e
+			fit.e[i] = sigmoid(e)
 		}
 	})
-	fit.beta = beta
-	fit.e = make([]float64, n)
-	for i := range fit.e {
-		fit.e[i] = sigmoid(eta[i])
-	}
 	fit.deviance = dev - penalty(beta)
 	for j := 1; j < p; j++ {
 		fit.maxStdCoef = math.Max(fit.maxStdCoef, math.Abs(beta[j]*scale[j]))

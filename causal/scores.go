@@ -7,6 +7,7 @@ import (
 	"slices"
 	"sort"
 	"strings"
+	"sync"
 )
 
 // FitOption tunes the propensity model.
@@ -226,7 +227,10 @@ func propensityFor(d *Design, o logitOptions) *Scores {
 			}
 		}
 		// Scores: pinned units at 0 or 1, the others from the fit.
-		for i := 0; i < d.N; i++ {
+		if cur == d && len(fit.e) == d.N {
+			copy(sc.E, fit.e) // nothing pinned: the fit's own scores
+		}
+		for i := 0; i < d.N && cur != d; i++ {
 			if pinned[i] >= 0 {
 				sc.E[i] = pinned[i]
 				continue
@@ -535,10 +539,16 @@ func sortScores(e, t []float64) []scoreT {
 			e0 = append(e0, v)
 		}
 	}
-	done := make(chan struct{})
-	go func() { slices.Sort(e1); close(done) }()
-	slices.Sort(e0)
-	<-done
+	// Four runs (each arm in two halves) sorted concurrently, then merged.
+	h1, h0 := len(e1)/2, len(e0)/2
+	var wg sync.WaitGroup
+	for _, run := range [][]float64{e1[:h1], e1[h1:], e0[:h0], e0[h0:]} {
+		wg.Add(1)
+		go func(r []float64) { defer wg.Done(); slices.Sort(r) }(run)
+	}
+	wg.Wait()
+	e1 = mergeSorted(e1[:h1], e1[h1:])
+	e0 = mergeSorted(e0[:h0], e0[h0:])
 	p := make([]scoreT, 0, len(e))
 	i, j := 0, 0
 	for i < len(e1) || j < len(e0) {
@@ -551,6 +561,23 @@ func sortScores(e, t []float64) []scoreT {
 		}
 	}
 	return p
+}
+
+// mergeSorted merges two ascending runs into a new slice.
+func mergeSorted(a, b []float64) []float64 {
+	out := make([]float64, 0, len(a)+len(b))
+	i, j := 0, 0
+	for i < len(a) && j < len(b) {
+		if a[i] <= b[j] {
+			out = append(out, a[i])
+			i++
+		} else {
+			out = append(out, b[j])
+			j++
+		}
+	}
+	out = append(out, a[i:]...)
+	return append(out, b[j:]...)
 }
 
 // auc is the c-statistic of scores e for treatment t.
