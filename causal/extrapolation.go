@@ -208,7 +208,17 @@ func (a *ExtrapolationAudit) restricted() *Effect {
 	d := sc.Design
 	e := &Effect{Estimator: RegressionAdjustment, Estimand: a.Estimand, SEMethod: RegressionAdjustment.seMethod(), Supported: true,
 		Value: math.NaN(), SE: math.NaN(), CI95: Interval{math.NaN(), math.NaN()}, Mu1: math.NaN(), Mu0: math.NaN()}
-	e.N, e.NTreated, e.NControl = d.N, d.Treated, d.Control
+	// The units averaged over: the supported target units.
+	for i, ok := range a.Supported {
+		if ok {
+			e.N++
+			if d.T[i] == 1 {
+				e.NTreated++
+			} else {
+				e.NControl++
+			}
+		}
+	}
 	e.Population = fmt.Sprintf("%s whose counterfactual predictions stay within the other arm's data (%d of %d)", a.Estimand.population(), a.SupportedN, a.TargetN)
 	if a.SupportedN == 0 {
 		e.err = fmt.Errorf("extrapolation audit: every prediction for the %s rests on extrapolation: no supported unit is left", a.Estimand)

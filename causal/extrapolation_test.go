@@ -155,3 +155,18 @@ func TestExtrapolationCurve(t *testing.T) {
 		t.Errorf("held values %+v %v", wc.Held, wc.Err())
 	}
 }
+
+// The restricted estimate averages over the supported target units only, and
+// says how many they are.
+func TestExtrapolationRestrictedCountsSupportedUnits(t *testing.T) {
+	s := Load("../testdata/water_audits.csv").Treat("audit").TreatedLevel("yes").Outcome("litres_per_day").
+		Adjust("household_size", "lot_m2", "home_age", "last_summer_lpd", "pool", "district", "income_band")
+	a := s.Propensity().Extrapolation(ATE)
+	if a.Err() != nil {
+		t.Fatal(a.Err())
+	}
+	r := a.Restricted
+	if r.N != a.SupportedN || r.NTreated+r.NControl != r.N || a.SupportedN >= a.TargetN {
+		t.Errorf("restricted effect over %d units (%d treated, %d control); %d of %d target units supported", r.N, r.NTreated, r.NControl, a.SupportedN, a.TargetN)
+	}
+}
