@@ -199,6 +199,7 @@ func TestKernelSpecEnvironment(t *testing.T) {
 	want := map[string]string{
 		"GOPROXY":             "file:///c/proxy,file:///m/cache/download",
 		"GONOSUMDB":           ModulePath,
+		"GOSUMDB":             "off",
 		"GOFLAGS":             "-mod=mod",
 		"GOTOOLCHAIN":         "local",
 		"COUNTERPART_ECHARTS": "/c/echarts.min.js",

@@ -531,11 +531,19 @@ func kernelSpec(inst *Installed, displayName, proxy, gomodcache, goBin string) K
 		Language:      "go",
 		InterruptMode: "message",
 		Env: map[string]string{
-			// Our module from the local proxy; everything else from the module cache,
-			// whose download folder also answers checksum-database lookups.
-			"GOPROXY":     "file://" + filepath.ToSlash(proxy) + ",file://" + filepath.ToSlash(filepath.Join(gomodcache, "cache", "download")),
-			"GOMODCACHE":  gomodcache,
-			"GONOSUMDB":   ModulePath,
+			// Our module from the local proxy; everything else from the module cache.
+			// Only local files are listed, so nothing can come from the network.
+			"GOPROXY":    "file://" + filepath.ToSlash(proxy) + ",file://" + filepath.ToSlash(filepath.Join(gomodcache, "cache", "download")),
+			"GOMODCACHE": gomodcache,
+			"GONOSUMDB":  ModulePath,
+			// The kernel's scratch module has no go.sum, so Go would ask the
+			// checksum database about every dependency; offline that fails unless
+			// an earlier `go get` happened to cache the answers (a fresh machine
+			// has none: building the repository checks its go.sum instead). The
+			// modules it can reach were verified against the repository's go.sum
+			// when they were downloaded, and no network source is listed above, so
+			// the lookup adds nothing: turn it off.
+			"GOSUMDB":     "off",
 			"GOFLAGS":     "-mod=mod",
 			"GOTOOLCHAIN": "local",
 			"PATH":        path,
