@@ -135,8 +135,8 @@ func TestE2ENotebooks(t *testing.T) {
 	if err != nil {
 		t.Fatalf("second setup failed: %v\n%s", err, out)
 	}
-	if n := strings.Count(out, "] skipped"); n != 4 {
-		t.Fatalf("second setup should skip all 4 steps, skipped %d:\n%s", n, out)
+	if n := strings.Count(out, "] skipped"); n != 5 {
+		t.Fatalf("second setup should skip all 5 steps, skipped %d:\n%s", n, out)
 	}
 	t.Logf("setup again (nothing to do) took %s", time.Since(t0).Round(10*time.Millisecond))
 

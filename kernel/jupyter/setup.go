@@ -104,7 +104,7 @@ func Setup(ctx context.Context, o SetupOptions) (*Installed, error) {
 	if err != nil {
 		return nil, err
 	}
-	say("[1/4] %s (%s)", did, since(t0))
+	say("[1/5] %s (%s)", did, since(t0))
 
 	t0 = time.Now()
 	version, did, err := publishModule(repo, filepath.Join(cache, "proxy"), o.Force)
@@ -112,14 +112,21 @@ func Setup(ctx context.Context, o SetupOptions) (*Installed, error) {
 		return nil, err
 	}
 	inst.ModuleVersion = version
-	say("[2/4] %s (%s)", did, since(t0))
+	say("[2/5] %s (%s)", did, since(t0))
+
+	t0 = time.Now()
+	did, err = warmModules(ctx, goCmd, filepath.Join(cache, "proxy"), version, o.Force)
+	if err != nil {
+		return nil, err
+	}
+	say("[3/5] %s (%s)", did, since(t0))
 
 	t0 = time.Now()
 	inst.EChartsPath, did, err = placeECharts(ctx, o.Force)
 	if err != nil {
 		return nil, err
 	}
-	say("[3/4] %s (%s)", did, since(t0))
+	say("[4/5] %s (%s)", did, since(t0))
 
 	gomodcache, err := output(ctx, repo, nil, goCmd, "env", "GOMODCACHE")
 	if err != nil {
@@ -130,7 +137,7 @@ func Setup(ctx context.Context, o SetupOptions) (*Installed, error) {
 	if err != nil {
 		return nil, err
 	}
-	say("[4/4] %s", did)
+	say("[5/5] %s", did)
 
 	// Ask Jupyter itself whether it sees the kernel (jupyter-client provides kernelspec).
 	env := append(os.Environ(), "JUPYTER_DATA_DIR="+dataDir)
@@ -142,6 +149,66 @@ func Setup(ctx context.Context, o SetupOptions) (*Installed, error) {
 		say("Jupyter lists kernel %q (%s). Open a notebook with it, or: counterpart run NOTEBOOK --html OUT.html", o.KernelName, o.DisplayName)
 	}
 	return inst, nil
+}
+
+// warmModules resolves, once per published version and with network access,
+// what a fresh notebook needs: a scratch module like the kernel's requires
+// the published version and builds a program importing every package of the
+// module. That downloads into the module cache every go.mod of the module
+// graph (a dependency with a pre-1.17 go.mod pulls in its whole graph, which
+// building the repository alone never fetches) and every zip the packages
+// need, and warms the build cache, so that the kernel, whose GOPROXY lists
+// only local files, resolves imports offline.
+func warmModules(ctx context.Context, goCmd, proxy, version string, force bool) (string, error) {
+	marker := filepath.Join(proxy, ".warmed-"+version)
+	if !force {
+		if _, err := os.Stat(marker); err == nil {
+			return fmt.Sprintf("skipped resolving %s for notebooks: done before", version), nil
+		}
+	}
+	dir, err := os.MkdirTemp("", "counterpart-warm-")
+	if err != nil {
+		return "", err
+	}
+	defer os.RemoveAll(dir)
+	gover, err := output(ctx, dir, nil, goCmd, "env", "GOVERSION")
+	if err != nil {
+		return "", err
+	}
+	goLine := strings.TrimPrefix(strings.TrimSpace(string(gover)), "go")
+	if i := strings.IndexAny(goLine, " -"); i > 0 {
+		goLine = goLine[:i]
+	}
+	mod := "module counterpart.scratch\n\ngo " + goLine + "\n"
+	main := "package main\n\nimport (\n"
+	for _, p := range []string{"causal", "causal/scenario", "widgets", "kernel"} {
+		main += "\t_ \"" + ModulePath + "/" + p + "\"\n"
+	}
+	main += ")\n\nfunc main() {}\n"
+	if err := os.WriteFile(filepath.Join(dir, "go.mod"), []byte(mod), 0o644); err != nil {
+		return "", err
+	}
+	if err := os.WriteFile(filepath.Join(dir, "main.go"), []byte(main), 0o644); err != nil {
+		return "", err
+	}
+	upstream, err := output(ctx, dir, nil, goCmd, "env", "GOPROXY")
+	if err != nil {
+		return "", err
+	}
+	env := append(os.Environ(),
+		"GOPROXY=file://"+filepath.ToSlash(proxy)+","+strings.TrimSpace(string(upstream)),
+		"GONOSUMDB="+ModulePath, "GOFLAGS=-mod=mod", "GOTOOLCHAIN=local", "GOWORK=off")
+	hint := "resolving the module graph for notebooks needs the Go module proxy once (run setup again with network access)"
+	if _, err := output(ctx, dir, env, goCmd, "get", ModulePath+"@"+version); err != nil {
+		return "", fmt.Errorf("%s: %v", hint, err)
+	}
+	if _, err := output(ctx, dir, env, goCmd, "build", "-o", os.DevNull, "."); err != nil {
+		return "", fmt.Errorf("%s: %v", hint, err)
+	}
+	if err := os.WriteFile(marker, []byte(version+"\n"), 0o644); err != nil {
+		return "", err
+	}
+	return fmt.Sprintf("resolved %s and its module graph into the module cache for offline notebooks", version), nil
 }
 
 func since(t time.Time) string { return time.Since(t).Round(10 * time.Millisecond).String() }
