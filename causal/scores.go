@@ -423,24 +423,42 @@ func findSeparation(d *Design) []Separation {
 		}
 		return "control"
 	}
-	// Per-term ranges by arm, in one pass over the rows.
-	ranges := make([][4]float64, d.P)
-	for j := range ranges {
-		ranges[j] = [4]float64{math.Inf(1), math.Inf(-1), math.Inf(1), math.Inf(-1)}
-	}
-	for k := 0; k < d.N; k++ {
-		row := d.X[k*d.P : (k+1)*d.P]
-		off := 2
-		if d.T[k] == 1 {
-			off = 0
+	// Per-term ranges by arm, in one parallel pass over the rows.
+	newRanges := func() [][4]float64 {
+		r := make([][4]float64, d.P)
+		for j := range r {
+			r[j] = [4]float64{math.Inf(1), math.Inf(-1), math.Inf(1), math.Inf(-1)}
 		}
-		for j, v := range row {
-			r := &ranges[j]
-			if v < r[off] {
-				r[off] = v
+		return r
+	}
+	_, count := chunking(d.N)
+	parts := make([][][4]float64, count)
+	parallelChunks(d.N, func(c, lo, hi int) {
+		ranges := newRanges()
+		for k := lo; k < hi; k++ {
+			row := d.X[k*d.P : (k+1)*d.P]
+			off := 2
+			if d.T[k] == 1 {
+				off = 0
 			}
-			if v > r[off+1] {
-				r[off+1] = v
+			for j, v := range row {
+				r := &ranges[j]
+				if v < r[off] {
+					r[off] = v
+				}
+				if v > r[off+1] {
+					r[off+1] = v
+				}
+			}
+		}
+		parts[c] = ranges
+	})
+	ranges := newRanges()
+	for _, part := range parts {
+		for j := range ranges {
+			for a := 0; a < 4; a += 2 {
+				ranges[j][a] = math.Min(ranges[j][a], part[j][a])
+				ranges[j][a+1] = math.Max(ranges[j][a+1], part[j][a+1])
 			}
 		}
 	}
