@@ -43,10 +43,14 @@ type Cell struct {
 	// Chance is, for a cell with an empty arm, the probability that a cell
 	// of this size would lack that arm if every unit had the overall share of
 	// treated units: (1−p)^n for a cell without treated units, p^n for one
-	// without controls (p = treated share). A small value (below 0.05)
-	// marks the empty arm as structural rather than a sampling zero — a
-	// screening rule of common practice, no source. 1 for cells with both arms.
-	Chance float64 `json:"chance"`
+	// without controls (p = treated share). 1 for cells with both arms.
+	// Structural marks an empty arm that chance does not explain: Chance
+	// below 0.05/K for a table of K cells (the Bonferroni bound, Dunn 1961,
+	// so that a table of many small cells from a randomised design raises
+	// no alarm with probability of at least 95%; the screen itself is our
+	// own rule, common practice with no published source).
+	Chance     float64 `json:"chance"`
+	Structural bool    `json:"structural"`
 }
 
 // Cut describes how one covariate was cut.
@@ -67,7 +71,9 @@ type Cells struct {
 	Options CellOptions
 	// Totals.
 	Violating        int     // cells with an empty arm
-	Structural       int     // violating cells whose empty arm is unlikely by chance (Cell.Chance < 0.05)
+	Structural       int     // violating cells whose empty arm chance does not explain (Cell.Structural)
+	// ChanceThreshold is the per-cell bound 0.05/K behind Cell.Structural.
+	ChanceThreshold float64
 	UnitsStructural  int     // units in structural violating cells
 	ThinCells        int     // cells with a thin (but not empty) arm
 	UnitsViolating   int     // units in violating cells
@@ -329,6 +335,7 @@ func buildCells(d *Design, columns []string, codes [][]int32, cuts []Cut, o Cell
 		}
 	}
 	p := float64(d.Treated) / float64(n)
+	c.ChanceThreshold = 0.05 / float64(len(c.Rows))
 	for r := range c.Rows {
 		cell := &c.Rows[r]
 		cell.Chance = 1
@@ -339,7 +346,8 @@ func buildCells(d *Design, columns []string, codes [][]int32, cuts []Cut, o Cell
 			} else {
 				cell.Chance = math.Pow(p, m)
 			}
-			if cell.Chance < 0.05 {
+			if cell.Chance < c.ChanceThreshold {
+				cell.Structural = true
 				c.Structural++
 				c.UnitsStructural += cell.Treated + cell.Control
 			}

@@ -154,7 +154,7 @@ func ExampleEffect_EValue() {
 
 func ExampleVerdict_remedies() {
 	s := causal.Load("../testdata/water_audits.csv").Treat("audit").TreatedLevel("yes").
-		Outcome("litres_per_day").Adjust("district", "household_size", "lot_m2", "pool")
+		Outcome("litres_per_day").Adjust("district", "household_size", "home_age")
 	v := s.Propensity().Verdict(causal.VerdictOptions{}, s.Cells("district"))
 	fmt.Println(v.Status, v.Supported)
 	for _, r := range v.Remedies {
@@ -164,7 +164,7 @@ func ExampleVerdict_remedies() {
 	// violated [ATT ATO]
 	// target_att: drops 0 treated, 0 control
 	// overlap_weights: drops 0 treated, 0 control
-	// trim: drops 123 treated, 757 control
+	// trim: drops 0 treated, 554 control
 }
 
 func ExampleScores_WithWeights() {

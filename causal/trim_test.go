@@ -207,8 +207,8 @@ func TestTrimEdgeCases(t *testing.T) {
 	// Separation: trimming drops the pinned harbour units and refits
 	// without the now-constant district=harbour term.
 	sep := Load("../testdata/water_audits.csv").Treat("audit").TreatedLevel("yes").Outcome("litres_per_day").
-		Adjust("district", "household_size", "lot_m2", "pool").Propensity()
-	tr = sep.Trim(Symmetric(0.05))
+		Adjust("district", "household_size", "home_age").Propensity()
+	tr = sep.Trim(Symmetric(0.1))
 	if tr.Err() != nil {
 		t.Fatal(tr.Err())
 	}

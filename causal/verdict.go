@@ -29,6 +29,28 @@ type VerdictOptions struct {
 	MaxShareExtreme float64
 }
 
+// validate rejects thresholds that cannot mean anything. Zero means the
+// default; to be stricter than a default, give a small positive value.
+func (o VerdictOptions) validate() error {
+	check := func(name string, v, hi float64, open bool) error {
+		if math.IsNaN(v) || v < 0 || v > hi || (open && v == hi) {
+			rng := fmt.Sprintf("[0, %g]", hi)
+			if open {
+				rng = fmt.Sprintf("[0, %g)", hi)
+			}
+			return fmt.Errorf("verdict options: %s = %g is outside %s (0 means the default)", name, v, rng)
+		}
+		return nil
+	}
+	if err := check("MaxShareOutside", o.MaxShareOutside, 1, false); err != nil {
+		return err
+	}
+	if err := check("MaxShareExtreme", o.MaxShareExtreme, 1, false); err != nil {
+		return err
+	}
+	return check("Extreme", o.Extreme, 0.5, true)
+}
+
 func (o VerdictOptions) withDefaults() VerdictOptions {
 	if o.MaxShareOutside <= 0 {
 		o.MaxShareOutside = 0.05
@@ -168,7 +190,7 @@ func (sc *Scores) positivity(o VerdictOptions, cells []*Cells) *positivity {
 			pf.violated = true
 			var t1, c0 int
 			for _, r := range c.Rows {
-				if r.Empty && r.Chance < 0.05 {
+				if r.Structural {
 					if r.Treated > 0 {
 						pf.treatedOnly = true
 						t1 += r.Treated
@@ -180,7 +202,7 @@ func (sc *Scores) positivity(o VerdictOptions, cells []*Cells) *positivity {
 			}
 			for i := 0; i < d.N && i < len(c.cellOf); i++ {
 				r := c.Rows[c.cellOf[i]]
-				if r.Empty && r.Chance < 0.05 {
+				if r.Structural {
 					if d.T[i] == 1 {
 						pf.treatedAlone[i] = true
 					} else {
@@ -200,12 +222,45 @@ func (sc *Scores) positivity(o VerdictOptions, cells []*Cells) *positivity {
 				pf.controlWhy = append(pf.controlWhy, fmt.Sprintf("positivity cells (%s): %d controls are in cells without treated units", cols, c0))
 			}
 		}
+		// Per arm: units in cells where the other arm is thin (or missing
+		// by what may be chance) have almost no comparable units there. More
+		// than MaxShareOutside of an arm in such cells withdraws the estimand
+		// that targets that arm (ATT for the treated, ATC for the controls).
+		{
+			cols := strings.Join(c.Columns, " × ")
+			var tThin, cThin int
+			for _, r := range c.Rows {
+				if r.Structural {
+					continue // reported above
+				}
+				if r.Treated > 0 && r.Control < c.Options.Thin {
+					tThin += r.Treated
+				}
+				if r.Control > 0 && r.Treated < c.Options.Thin {
+					cThin += r.Control
+				}
+			}
+			if share := float64(tThin) / float64(d.Treated); share > o.MaxShareOutside {
+				pf.treatedOnly, pf.limited = true, true
+				msg := fmt.Sprintf("positivity cells (%s): %d treated units (%.1f%% of the treated) are in cells with fewer than %d controls: their comparisons rest on a handful of controls (threshold %.0f%% of the arm)",
+					cols, tThin, 100*share, c.Options.Thin, 100*o.MaxShareOutside)
+				pf.treatedWhy = append(pf.treatedWhy, msg)
+				pf.reasons = append(pf.reasons, msg)
+			}
+			if share := float64(cThin) / float64(d.Control); share > o.MaxShareOutside {
+				pf.controlOnly, pf.limited = true, true
+				msg := fmt.Sprintf("positivity cells (%s): %d controls (%.1f%% of the controls) are in cells with fewer than %d treated units: their comparisons rest on a handful of treated units (threshold %.0f%% of the arm)",
+					cols, cThin, 100*share, c.Options.Thin, 100*o.MaxShareOutside)
+				pf.controlWhy = append(pf.controlWhy, msg)
+				pf.reasons = append(pf.reasons, msg)
+			}
+		}
 		// Thin cells and small cells lacking an arm by what may be chance:
 		// limited when they hold more than MaxShareOutside of the units,
 		// otherwise a note.
 		sparse, sparseCells := 0, 0
 		for _, r := range c.Rows {
-			if r.Thin || (r.Empty && r.Chance >= 0.05) {
+			if r.Thin || (r.Empty && !r.Structural) {
 				sparse += r.Treated + r.Control
 				sparseCells++
 			}
@@ -252,11 +307,35 @@ func (sc *Scores) positivity(o VerdictOptions, cells []*Cells) *positivity {
 			}
 		}
 	}
-	var ext int
-	for _, e := range sc.E {
+	var ext, tHigh, cLow int
+	for i, e := range sc.E {
 		if e < o.Extreme || e > 1-o.Extreme {
 			ext++
 		}
+		if d.T[i] == 1 && e > 1-o.Extreme {
+			tHigh++
+		}
+		if d.T[i] == 0 && e < o.Extreme {
+			cLow++
+		}
+	}
+	// Per arm: treated units with scores above 1 − Extreme have few
+	// comparable controls, and those controls carry ATT weights e/(1 − e)
+	// above (1 − Extreme)/Extreme; likewise controls below Extreme for the
+	// ATC. More than MaxShareExtreme of an arm there withdraws that estimand.
+	if share := float64(tHigh) / float64(d.Treated); share > o.MaxShareExtreme && !pf.noOverlap {
+		pf.treatedOnly, pf.limited = true, true
+		msg := fmt.Sprintf("%.1f%% of the treated units (%d) have scores above %.2f: few comparable controls, each carrying an ATT weight above %.0f (threshold %.0f%% of the arm)",
+			100*share, tHigh, 1-o.Extreme, (1-o.Extreme)/o.Extreme, 100*o.MaxShareExtreme)
+		pf.treatedWhy = append(pf.treatedWhy, msg)
+		pf.reasons = append(pf.reasons, msg)
+	}
+	if share := float64(cLow) / float64(d.Control); share > o.MaxShareExtreme && !pf.noOverlap {
+		pf.controlOnly, pf.limited = true, true
+		msg := fmt.Sprintf("%.1f%% of the controls (%d) have scores below %.2f: few comparable treated units, each carrying an ATC weight above %.0f (threshold %.0f%% of the arm)",
+			100*share, cLow, o.Extreme, (1-o.Extreme)/o.Extreme, 100*o.MaxShareExtreme)
+		pf.controlWhy = append(pf.controlWhy, msg)
+		pf.reasons = append(pf.reasons, msg)
 	}
 	if share := float64(ext) / float64(d.N); share > o.MaxShareExtreme {
 		pf.limited = true
@@ -479,7 +558,7 @@ func (sc *Scores) remedies(pf *positivity, o VerdictOptions, adequate bool) []Re
 // Rules (each threshold in VerdictOptions, with its source):
 //   - violated: separation (treatment deterministic for a covariate level or
 //     range), a cell with an empty arm that chance does not explain
-//     (Cell.Chance < 0.05), or no common-support band at all;
+//     (Cell.Structural: Bonferroni-bounded chance screen), or no common-support band at all;
 //   - limited: a share of units outside the band above MaxShareOutside, a
 //     share of extreme scores above MaxShareExtreme, sparse cells (thin,
 //     or lacking an arm by what may be chance) holding more than
@@ -508,6 +587,9 @@ func (sc *Scores) Verdict(o VerdictOptions, cells ...*Cells) *Verdict {
 		if err := c.Err(); err != nil {
 			return &Verdict{err: err}
 		}
+	}
+	if err := o.validate(); err != nil {
+		return &Verdict{err: err}
 	}
 	o = o.withDefaults()
 	pf := sc.positivity(o, cells)

@@ -6,13 +6,38 @@ import (
 	"testing"
 )
 
-// The water scenario (testdata/README.md): district harbour was never
-// offered audits (552 households, all controls). The verdict withdraws the
-// ATE, keeps the ATT and ATO, recommends the ATT and says what each remedy
-// costs and who is affected.
-func TestVerdictRemediesWater(t *testing.T) {
+// The water scenario (testdata/README.md) with all covariates: district
+// harbour was never offered audits (no treated units: ATE and ATC withdrawn)
+// and large-lot homes with pools nearly always took one (13.8% of the
+// audited households score above 0.9, with hardly any comparable controls:
+// ATT withdrawn too). Only the ATO is left.
+func TestVerdictWaterAllCovariates(t *testing.T) {
 	s := Load("../testdata/water_audits.csv").Treat("audit").TreatedLevel("yes").Outcome("litres_per_day").
 		Adjust("district", "income_band", "household_size", "lot_m2", "home_age", "pool", "last_summer_lpd")
+	v := s.Propensity().Verdict(VerdictOptions{}, s.Cells("district", "pool"), s.CellsWith(CellOptions{Bins: 10}, "lot_m2", "pool"))
+	if v.Err() != nil {
+		t.Fatal(v.Err())
+	}
+	if v.Status != Violated || strings.Join(v.Supported, ",") != "ATO" {
+		t.Fatalf("status %s, supported %v; reasons %v", v.Status, v.Supported, v.Reasons)
+	}
+	joined := strings.Join(v.Reasons, "\n")
+	for _, want := range []string{"district=harbour", "treated units (", "scores above 0.90", "fewer than 5 controls"} {
+		if !strings.Contains(joined, want) {
+			t.Errorf("reasons lack %q:\n%s", want, joined)
+		}
+	}
+	if len(v.Remedies) == 0 || v.Remedies[0].Action != "overlap_weights" {
+		t.Errorf("remedies %+v", v.Remedies)
+	}
+}
+
+// With only weak covariates besides district, harbour (all controls) is the
+// one problem: the verdict withdraws the ATE, keeps the ATT and ATO,
+// recommends the ATT and says what each remedy costs and who is affected.
+func TestVerdictRemediesWater(t *testing.T) {
+	s := Load("../testdata/water_audits.csv").Treat("audit").TreatedLevel("yes").Outcome("litres_per_day").
+		Adjust("district", "household_size", "home_age")
 	sc := s.Propensity()
 	v := sc.Verdict(VerdictOptions{}, s.Cells("district", "pool"))
 	if v.Err() != nil {
@@ -40,7 +65,7 @@ func TestVerdictRemediesWater(t *testing.T) {
 		t.Errorf("overlap remedy ESS %g vs weights %g", float64(v.Remedies[1].ESSTreated), w.ESSTreated)
 	}
 	text := v.String()
-	for _, want := range []string{"remedy: estimate the ATT", "alternative: estimate the ATO", "alternative: trim", "who: the 1", "cannot verify unconfoundedness"} {
+	for _, want := range []string{"remedy: estimate the ATT", "alternative: estimate the ATO", "alternative: trim", "who: the 554 units dropped", "cannot verify unconfoundedness"} {
 		if !strings.Contains(text, want) {
 			t.Errorf("verdict text lacks %q:\n%s", want, text)
 		}

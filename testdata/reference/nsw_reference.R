@@ -490,6 +490,67 @@ add_trim("regression_adjustment", "ATE", sum(xbk * dbk),
          sqrt(as.numeric(t(xbk) %*% (vcov(g1k) + vcov(g0k)) %*% xbk + t(dbk) %*% cov(Xk) %*% dbk / nk)), "delta method")
 
 # ---------------------------------------------------------------------------------------------
+# 8. The ATC (average effect on the controls, m = n0 units) of the weighting and doubly robust
+#    estimators on the NSW data, written directly with the original T and e (no exchange of the arms),
+#    and the difference in means for the ATT and ATC (the same unadjusted contrast as for the ATE).
+#    Uses e, X, beta_hat, m1hat, m0hat and sandwich_se of sections 2 and 5, unchanged.
+#    Extra derivative used (the inverse odds (1-e)/e = exp(-x'beta)):
+#      d/dbeta [(1 - e)/e]   = - (1 - e)/e x
+# ---------------------------------------------------------------------------------------------
+estimates_more <- list()
+add_more <- function(estimator, estimand, value, se, se_method, mu1, mu0) {
+  estimates_more[[length(estimates_more) + 1]] <<- list(estimator = estimator, estimand = estimand,
+                                                         value = value, se = se, se_method = se_method,
+                                                         mu1 = mu1, mu0 = mu0)
+}
+ybar1 <- mean(y[Tr == 1]); ybar0 <- mean(y[Tr == 0])
+stopifnot(abs(ybar1 - ybar0 - dim_value) < 1e-12 * abs(dim_value))
+# difference in means: the same number and SE whatever the estimand (it adjusts for nothing)
+add_more("difference_in_means", "ATT", ybar1 - ybar0, dim_se, "unpooled variances", ybar1, ybar0)
+add_more("difference_in_means", "ATC", ybar1 - ybar0, dim_se, "unpooled variances", ybar1, ybar0)
+
+iodds <- (1 - e) / e                       # inverse odds; the treated units' ATC weight
+
+# ipw (Horvitz-Thompson) ATC: tau = (1/n0) sum [T y (1-e)/e - (1-T) y]
+#   g1 = T y (1-e)/e - (1-T) mu1   (mu1 = sum(T y (1-e)/e) / n0)
+#                                                dg1/dbeta = - T y (1-e)/e x        dg1/dmu1 = -(1-T)
+#   g0 = (1-T)(y - mu0)            (mu0 = ybar0) dg0/dbeta = 0                      dg0/dmu0 = -(1-T)
+# The (1-T) multiplier on mu1 makes the randomness of n0 part of the equation (as T does for the ATT).
+c_mu1 <- sum(Tr * y * iodds) / n0; c_mu0 <- ybar0
+ipw_atc <- c_mu1 - c_mu0
+stopifnot(abs(ipw_atc - sum(Tr * y * iodds - (1 - Tr) * y) / n0) < 1e-8)
+se <- sandwich_se(g1 = Tr * y * iodds - (1 - Tr) * c_mu1, g0 = (1 - Tr) * (y - c_mu0),
+                  dg1_db = X * (-Tr * y * iodds), dg0_db = X * 0,
+                  dg1_dmu1 = -(1 - Tr), dg0_dmu0 = -(1 - Tr),
+                  gfun = function(b, m1, m0) { ee <- plogis(as.numeric(X %*% b)); cbind(Tr * y * (1 - ee) / ee - (1 - Tr) * m1, (1 - Tr) * (y - m0)) },
+                  mu1 = c_mu1, mu0 = c_mu0)
+add_more("ipw", "ATC", ipw_atc, se, "sandwich", c_mu1, c_mu0)
+
+# ipw_normalized (Hajek) ATC: tau = sum(T y (1-e)/e) / sum(T (1-e)/e) - ybar0
+#   g1 = T (1-e)/e (y - mu1)       dg1/dbeta = - T (1-e)/e (y - mu1) x      dg1/dmu1 = - T (1-e)/e
+#   g0 = (1-T)(y - mu0)            dg0/dbeta = 0                            dg0/dmu0 = -(1-T)
+c_mu1 <- sum(Tr * iodds * y) / sum(Tr * iodds); c_mu0 <- ybar0
+se <- sandwich_se(g1 = Tr * iodds * (y - c_mu1), g0 = (1 - Tr) * (y - c_mu0),
+                  dg1_db = X * (-Tr * iodds * (y - c_mu1)), dg0_db = X * 0,
+                  dg1_dmu1 = -Tr * iodds, dg0_dmu0 = -(1 - Tr),
+                  gfun = function(b, m1, m0) { ee <- plogis(as.numeric(X %*% b)); cbind(Tr * (1 - ee) / ee * (y - m1), (1 - Tr) * (y - m0)) },
+                  mu1 = c_mu1, mu0 = c_mu0)
+add_more("ipw_normalized", "ATC", c_mu1 - c_mu0, se, "sandwich", c_mu1, c_mu0)
+
+# aipw ATC: the treated-arm model f1 predicts Y(1) for the controls, corrected by the treated units'
+# residuals weighted by the inverse odds:
+#   mu1 = sum [(1-T) f1 + T (1-e)/e (y - f1)] / n0,  mu0 = ybar0,
+#   tau = sum [T (1-e)/e (y - f1) - (1-T)(y - f1)] / n0
+#   psi_i = (T (1-e)/e (y - f1) - (1-T)(y - f1 + tau)) / (n0/n);  SE = sqrt(sum psi_i^2) / n
+r1 <- y - m1hat
+c_mu1 <- sum((1 - Tr) * m1hat + Tr * iodds * r1) / n0; c_mu0 <- ybar0
+aipw_atc <- sum(Tr * iodds * r1 - (1 - Tr) * r1) / n0
+stopifnot(abs(aipw_atc - (c_mu1 - c_mu0)) < 1e-8 * max(1, abs(aipw_atc)))
+psi_c <- (Tr * iodds * r1 - (1 - Tr) * (r1 + aipw_atc)) / (n0 / n)
+stopifnot(abs(mean(psi_c)) < 1e-6)
+add_more("aipw", "ATC", aipw_atc, sqrt(sum(psi_c^2)) / n, "influence function", c_mu1, c_mu0)
+
+# ---------------------------------------------------------------------------------------------
 # JSON
 # ---------------------------------------------------------------------------------------------
 res <- list(
@@ -533,6 +594,7 @@ res <- list(
     iterations = fit_cat$iter
   ),
   estimates = estimates,
+  estimates_more = estimates_more,
   separation = list(
     data = "testdata/reference/separation.csv",
     formula = "treat ~ x1 + gate",
@@ -565,6 +627,7 @@ cat(sprintf("difference in means %.4f (SE %.4f)\n", dim_value, dim_se))
 print(cf)
 cat(sprintf("AUC %.6f  deviance %.6f  null %.6f  iterations %d\n", auc, fit$deviance, fit$null.deviance, fit$iter))
 for (x in estimates) cat(sprintf("%-22s %-4s %12.4f  SE %10.4f  %s\n", x$estimator, x$estimand, x$value, x$se, x$se_method))
+for (x in estimates_more) cat(sprintf("%-22s %-4s %12.4f  SE %10.4f  %s\n", x$estimator, x$estimand, x$value, x$se, x$se_method))
 cat("schooling reference level:", ref_level, "\n"); print(cfc)
 cat("separation, default control: warnings:", length(sep_default$warnings$v), " gate coef", sep_default$coef$v[3], " SE", sep_default$se$v[3], "\n")
 cat(sprintf("trimming (water audits): Crump alpha %.6f keeps %d of %d; percentile [%.6f, %.6f] keeps %d\n", cr$alpha,
