@@ -70,10 +70,10 @@ type Cells struct {
 	Rows    []Cell
 	Options CellOptions
 	// Totals.
-	Violating        int     // cells with an empty arm
-	Structural       int     // violating cells whose empty arm chance does not explain (Cell.Structural)
+	Violating  int // cells with an empty arm
+	Structural int // violating cells whose empty arm chance does not explain (Cell.Structural)
 	// ChanceThreshold is the per-cell bound 0.05/K behind Cell.Structural.
-	ChanceThreshold float64
+	ChanceThreshold  float64
 	UnitsStructural  int     // units in structural violating cells
 	ThinCells        int     // cells with a thin (but not empty) arm
 	UnitsViolating   int     // units in violating cells
