@@ -80,6 +80,9 @@ func (b *BalanceSheet) Err() error {
 
 // MaxAbsSMD is the largest |SMD| (after weighting when weighted).
 func (b *BalanceSheet) MaxAbsSMD() float64 {
+	if b.Err() != nil {
+		return math.NaN()
+	}
 	var m float64
 	for _, r := range b.Rows {
 		v := r.SMD
@@ -187,6 +190,9 @@ func sortPair(x, w []float64) {
 
 // String is the terminal view.
 func (b *BalanceSheet) String() string {
+	if err := b.Err(); err != nil {
+		return "balancesheet: " + err.Error()
+	}
 	if b.err != nil {
 		return "balance: " + b.err.Error()
 	}

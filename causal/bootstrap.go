@@ -414,6 +414,9 @@ func (rp *replicator) run(b int, ws *bootWorkspace) (float64, error) {
 
 // String is the terminal view.
 func (b *Bootstrap) String() string {
+	if err := b.Err(); err != nil {
+		return "bootstrap: " + err.Error()
+	}
 	if b.err != nil {
 		return "bootstrap: " + b.err.Error()
 	}
@@ -443,6 +446,9 @@ func (b *Bootstrap) refits() string {
 // MarshalJSON is the pipeline view: summaries and a 30-bin histogram of
 // the replicate estimates (bounded size).
 func (b *Bootstrap) MarshalJSON() ([]byte, error) {
+	if err := b.Err(); err != nil {
+		return json.Marshal(errJSON{err.Error()})
+	}
 	if b.err != nil {
 		return json.Marshal(errJSON{b.err.Error()})
 	}

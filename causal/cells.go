@@ -91,11 +91,20 @@ func (c *Cells) Err() error {
 	if c == nil {
 		return errors.New("nil Cells")
 	}
+	if c.err == nil && (c.cellOf == nil) {
+		return errors.New("positivity cells not computed: use Study.Cells(columns...)")
+	}
 	return c.err
 }
 
-// CellOf returns the index into Rows of the cell of used row i.
-func (c *Cells) CellOf(i int) int { return int(c.cellOf[i]) }
+// CellOf returns the index into Rows of the cell of used row i (−1 when
+// there is no such row or no table).
+func (c *Cells) CellOf(i int) int {
+	if c.Err() != nil || i < 0 || i >= len(c.cellOf) {
+		return -1
+	}
+	return int(c.cellOf[i])
+}
 
 // Cells builds the positivity table for the named columns (any columns of
 // the data; the rows used are the Study's). Default options: 5 quantile bins,
@@ -377,6 +386,9 @@ func cellLabels(k int64, strides []int64, cuts []Cut) []string {
 
 // String is the terminal view: violating and thin cells first.
 func (c *Cells) String() string {
+	if err := c.Err(); err != nil {
+		return "cells: " + err.Error()
+	}
 	if c.err != nil {
 		return "cells: " + c.err.Error()
 	}

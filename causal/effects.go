@@ -236,6 +236,9 @@ func (e *Effect) Err() error {
 
 // HasFlag reports whether the effect carries the flag code.
 func (e *Effect) HasFlag(code string) bool {
+	if e == nil {
+		return false
+	}
 	for _, f := range e.Flags {
 		if f.Code == code {
 			return true
@@ -845,6 +848,9 @@ func (es *Estimates) Err() error {
 
 // Get returns the effect of one estimator, or nil.
 func (es *Estimates) Get(est Estimator) *Effect {
+	if es == nil {
+		return &Effect{Estimator: est, err: errors.New("nil Estimates")}
+	}
 	for _, e := range es.Items {
 		if e.Estimator == est {
 			return e
@@ -876,6 +882,9 @@ func (sc *Scores) Effects(target Estimand, cells ...*Cells) *Estimates {
 
 // String is the terminal view of one effect.
 func (e *Effect) String() string {
+	if e == nil {
+		return "effect: nil Effect"
+	}
 	if e == nil {
 		return "effect: nil"
 	}
@@ -968,10 +977,18 @@ func (e *Effect) toJSON() effectJSON {
 // MarshalJSON writes the effect with the field names of the report's
 // "estimates" entries (estimator, estimand, value, se, ci95, se_method, n)
 // and the flags; a value that cannot be given is null with null_reason.
-func (e *Effect) MarshalJSON() ([]byte, error) { return json.Marshal(e.toJSON()) }
+func (e *Effect) MarshalJSON() ([]byte, error) {
+	if e == nil {
+		return json.Marshal(errJSON{"nil Effect"})
+	}
+	return json.Marshal(e.toJSON())
+}
 
 // MarshalJSON writes the array of estimate entries.
 func (es *Estimates) MarshalJSON() ([]byte, error) {
+	if err := es.Err(); err != nil {
+		return json.Marshal(errJSON{err.Error()})
+	}
 	if es.err != nil {
 		return json.Marshal(errJSON{es.err.Error()})
 	}
@@ -993,6 +1010,9 @@ func (es *Estimates) firstItemFlags() []Flag {
 
 // String is the terminal table.
 func (es *Estimates) String() string {
+	if err := es.Err(); err != nil {
+		return "estimates: " + err.Error()
+	}
 	if es.err != nil {
 		return "estimates: " + es.err.Error()
 	}

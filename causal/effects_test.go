@@ -9,7 +9,7 @@ import (
 )
 
 // Reference: testdata/reference/nsw_reference.R (R 4.2.2; glm, lm and the
-// textbook formulas of notes/ESTIMATORS.md), values in nsw_reference.json,
+// textbook formulas written out in that script), values in nsw_reference.json,
 // "estimates": every estimator and its standard error, to 1e-6 relative.
 //   - difference_in_means: ȳ1 − ȳ0, unpooled variances
 //   - regression_adjustment ATE/ATT/ATC: lm per arm, delta-method SE

@@ -146,6 +146,9 @@ func erosionStep(d *Design, key []int64, codes []int32, size int64) ([]int64, Er
 
 // String is the terminal view.
 func (e *Erosion) String() string {
+	if err := e.Err(); err != nil {
+		return "erosion: " + err.Error()
+	}
 	if e.err != nil {
 		return "erosion: " + e.err.Error()
 	}

@@ -130,6 +130,9 @@ func (e *Effect) EValue() *EValue {
 
 // String is the terminal view.
 func (e *EValue) String() string {
+	if err := e.Err(); err != nil {
+		return "evalue: " + err.Error()
+	}
 	if e.err != nil {
 		return "e-value: " + e.err.Error()
 	}
@@ -153,6 +156,9 @@ func (e *EValue) String() string {
 
 // MarshalJSON is the pipeline view.
 func (e *EValue) MarshalJSON() ([]byte, error) {
+	if err := e.Err(); err != nil {
+		return json.Marshal(errJSON{err.Error()})
+	}
 	if e.err != nil {
 		return json.Marshal(errJSON{e.err.Error()})
 	}

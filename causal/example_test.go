@@ -89,3 +89,13 @@ func ExampleFromColumns() {
 	fmt.Println(err, d.Treated, d.Control)
 	// Output: <nil> 3 3
 }
+
+func ExampleStudy_String() {
+	fmt.Print(nsw())
+	// Output:
+	// Study of ../testdata/nsw_dehejia_wahba.csv: 445 rows, 12 columns
+	//   treatment  treat
+	//   outcome    re78
+	//   covariates age, educ, black, hisp, married, nodegr, re74, re75
+	//   rows used  445 (185 treated, 260 control; 0 incomplete rows dropped); 9 design terms
+}

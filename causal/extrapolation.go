@@ -82,6 +82,9 @@ func (a *ExtrapolationAudit) Err() error {
 	if a == nil {
 		return errors.New("nil ExtrapolationAudit")
 	}
+	if a.err == nil && (a.scores == nil) {
+		return errors.New("extrapolation audit not computed: use Scores.Extrapolation(estimand)")
+	}
 	return a.err
 }
 
@@ -240,6 +243,9 @@ func (a *ExtrapolationAudit) restricted() *Effect {
 
 // String is the terminal view.
 func (a *ExtrapolationAudit) String() string {
+	if err := a.Err(); err != nil {
+		return "extrapolationaudit: " + err.Error()
+	}
 	if a.err != nil {
 		return "extrapolation audit: " + a.err.Error()
 	}
@@ -271,6 +277,9 @@ func (a *ExtrapolationAudit) String() string {
 
 // MarshalJSON is the pipeline view.
 func (a *ExtrapolationAudit) MarshalJSON() ([]byte, error) {
+	if err := a.Err(); err != nil {
+		return json.Marshal(errJSON{err.Error()})
+	}
 	if a.err != nil {
 		return json.Marshal(errJSON{a.err.Error()})
 	}
@@ -351,6 +360,9 @@ type CurveBin struct {
 func (c *ExtrapolationCurve) Err() error {
 	if c == nil {
 		return errors.New("nil ExtrapolationCurve")
+	}
+	if c.err == nil && (len(c.X) == 0 || len(c.F1) != len(c.X) || len(c.F0) != len(c.X)) {
+		return errors.New("extrapolation curve not computed: use ExtrapolationAudit.Curve(covariate)")
 	}
 	return c.err
 }
@@ -504,6 +516,9 @@ func emptyRuns(bins []CurveBin) []Interval {
 
 // String is a short terminal summary of the curve data.
 func (c *ExtrapolationCurve) String() string {
+	if err := c.Err(); err != nil {
+		return "extrapolationcurve: " + err.Error()
+	}
 	if c.err != nil {
 		return "extrapolation curve: " + c.err.Error()
 	}
@@ -530,6 +545,9 @@ func (c *ExtrapolationCurve) String() string {
 
 // MarshalJSON is the chart payload.
 func (c *ExtrapolationCurve) MarshalJSON() ([]byte, error) {
+	if err := c.Err(); err != nil {
+		return json.Marshal(errJSON{err.Error()})
+	}
 	if c.err != nil {
 		return json.Marshal(errJSON{c.err.Error()})
 	}

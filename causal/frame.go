@@ -93,14 +93,27 @@ type Frame struct {
 }
 
 // Names lists the column names in file order.
-func (f *Frame) Names() []string { return append([]string(nil), f.names...) }
+func (f *Frame) Names() []string {
+	if f == nil {
+		return nil
+	}
+	return append([]string(nil), f.names...)
+}
 
 // Rows is the number of data rows.
-func (f *Frame) Rows() int { return f.rows }
+func (f *Frame) Rows() int {
+	if f == nil {
+		return 0
+	}
+	return f.rows
+}
 
 // Column returns the named column. An unknown name gives an error that
 // lists the columns present and suggests the closest one.
 func (f *Frame) Column(name string) (*Column, error) {
+	if f == nil {
+		return nil, errors.New("no data: the frame is nil")
+	}
 	if c, ok := f.cols[name]; ok {
 		return c, nil
 	}

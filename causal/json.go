@@ -21,6 +21,9 @@ type errJSON struct {
 
 // MarshalJSON is the pipeline view of the propensity model.
 func (sc *Scores) MarshalJSON() ([]byte, error) {
+	if err := sc.Err(); err != nil {
+		return json.Marshal(errJSON{err.Error()})
+	}
 	if sc.err != nil {
 		return json.Marshal(errJSON{sc.err.Error()})
 	}
@@ -69,6 +72,9 @@ func (sc *Scores) MarshalJSON() ([]byte, error) {
 
 // MarshalJSON is the pipeline view of support by arm.
 func (s *Support) MarshalJSON() ([]byte, error) {
+	if err := s.Err(); err != nil {
+		return json.Marshal(errJSON{err.Error()})
+	}
 	if s.err != nil {
 		return json.Marshal(errJSON{s.err.Error()})
 	}
@@ -125,6 +131,9 @@ func (s *Support) MarshalJSON() ([]byte, error) {
 
 // MarshalJSON is the pipeline view of a positivity table.
 func (c *Cells) MarshalJSON() ([]byte, error) {
+	if err := c.Err(); err != nil {
+		return json.Marshal(errJSON{err.Error()})
+	}
 	if c.err != nil {
 		return json.Marshal(errJSON{c.err.Error()})
 	}
@@ -146,6 +155,9 @@ func (c *Cells) MarshalJSON() ([]byte, error) {
 
 // MarshalJSON is the pipeline view of the erosion curve.
 func (e *Erosion) MarshalJSON() ([]byte, error) {
+	if err := e.Err(); err != nil {
+		return json.Marshal(errJSON{err.Error()})
+	}
 	if e.err != nil {
 		return json.Marshal(errJSON{e.err.Error()})
 	}
@@ -160,6 +172,9 @@ func (e *Erosion) MarshalJSON() ([]byte, error) {
 // MarshalJSON is the pipeline view of a balance sheet (field names of the
 // report contract: covariate, smd, variance_ratio, smd_weighted).
 func (b *BalanceSheet) MarshalJSON() ([]byte, error) {
+	if err := b.Err(); err != nil {
+		return json.Marshal(errJSON{err.Error()})
+	}
 	if b.err != nil {
 		return json.Marshal(errJSON{b.err.Error()})
 	}

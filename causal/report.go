@@ -224,8 +224,22 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	return r, nil
 }
 
+// Err says why the report is unusable (nil, or not built by BuildReport).
+func (r *Report) Err() error {
+	if r == nil {
+		return errors.New("nil Report")
+	}
+	if r.Propensity == nil || r.Support == nil || r.Balance == nil || r.Verdict == nil {
+		return errors.New("report not built: use BuildReport")
+	}
+	return nil
+}
+
 // String is the short text summary printed by the report command.
 func (r *Report) String() string {
+	if err := r.Err(); err != nil {
+		return "report: " + err.Error()
+	}
 	var b strings.Builder
 	fmt.Fprintf(&b, "counterpart report: %s on %s, %d rows used (%d treated, %d control", r.Roles.Outcome, r.Roles.Treatment, r.Data.RowsUsed, r.Data.Treated, r.Data.Control)
 	if r.Data.RowsDropped > 0 {

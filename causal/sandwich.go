@@ -63,7 +63,7 @@ func newPropensityBlock(sc *Scores) *propensityBlock {
 // dg/dμ = −b_i and dg/dβ = (y_i a'_i − μ b'_i) x_i.
 type weightForm func(t, e float64) (a, da, b, db float64)
 
-// Arm means of the weighting estimators (ESTIMATORS.md):
+// Arm means of the weighting estimators (the same forms as testdata/reference/nsw_reference.R):
 var (
 	// ipw ATE, treated: Σ T y/e / n  (Horvitz & Thompson 1952)
 	formHTATE1 weightForm = func(t, e float64) (float64, float64, float64, float64) {

@@ -85,14 +85,22 @@ func (s *Scores) Err() error {
 	if s == nil {
 		return errors.New("nil Scores")
 	}
+	if s.err == nil && (s.Design == nil) {
+		return errors.New("scores not computed: build them with Study.Propensity()")
+	}
 	return s.err
 }
 
 // Coefficients returns a copy of β (design-column order).
-func (s *Scores) Coefficients() []float64 { return append([]float64(nil), s.beta...) }
+func (s *Scores) Coefficients() []float64 {
+	if s == nil {
+		return nil
+	}
+	return append([]float64(nil), s.beta...)
+}
 
 // Separated reports whether treatment is deterministic somewhere.
-func (s *Scores) Separated() bool { return len(s.Separation) > 0 }
+func (s *Scores) Separated() bool { return s != nil && len(s.Separation) > 0 }
 
 // Propensity fits the propensity model: a logistic regression of treatment on
 // the covariates with an intercept (see fitLogistic for the algorithm) and

@@ -124,6 +124,44 @@ func (s *Study) Err() error {
 	return err
 }
 
+// String describes the study: its data and roles, or its error.
+func (s *Study) String() string {
+	if s == nil {
+		return "study: nil Study: start with causal.Load or causal.FromSource"
+	}
+	if s.err != nil {
+		return "study: " + s.err.Error()
+	}
+	if s.src == nil {
+		return "study: no data: start with causal.Load or causal.FromSource"
+	}
+	var b strings.Builder
+	from := s.file
+	if from == "" {
+		from = "in-memory data"
+	}
+	fmt.Fprintf(&b, "Study of %s: %d rows, %d columns\n", from, s.src.Rows(), len(s.src.Names()))
+	tr := s.treat
+	if tr == "" {
+		tr = "(not set: call .Treat)"
+	} else if s.treatedLevel != "" {
+		tr += " (treated = " + s.treatedLevel + ")"
+	}
+	out := s.outcome
+	if out == "" {
+		out = "(not set)"
+	}
+	fmt.Fprintf(&b, "  treatment  %s\n  outcome    %s\n  covariates %s\n", tr, out, strings.Join(s.covariates, ", "))
+	if s.treat != "" {
+		if d, err := s.Design(); err != nil {
+			fmt.Fprintf(&b, "  problem: %v\n", err)
+		} else {
+			fmt.Fprintf(&b, "  rows used  %d (%d treated, %d control; %d incomplete rows dropped); %d design terms\n", d.N, d.Treated, d.Control, d.RowsDropped, d.P)
+		}
+	}
+	return b.String()
+}
+
 // Roles reports the role columns.
 type Roles struct {
 	Treatment    string   `json:"treatment"`
@@ -134,11 +172,19 @@ type Roles struct {
 
 // Roles returns the roles as set so far.
 func (s *Study) Roles() Roles {
+	if s == nil {
+		return Roles{}
+	}
 	return Roles{Treatment: s.treat, TreatedLevel: s.treatedLevel, Outcome: s.outcome, Covariates: append([]string{}, s.covariates...)}
 }
 
 // Source returns the underlying data source (nil if loading failed).
-func (s *Study) Source() Source { return s.src }
+func (s *Study) Source() Source {
+	if s == nil {
+		return nil
+	}
+	return s.src
+}
 
 // Term is one column of the design matrix.
 type TermInfo struct {
@@ -172,10 +218,18 @@ type Design struct {
 }
 
 // Row returns row i of the design matrix (a view, do not modify).
-func (d *Design) Row(i int) []float64 { return d.X[i*d.P : (i+1)*d.P] }
+func (d *Design) Row(i int) []float64 {
+	if d == nil || i < 0 || i >= d.N {
+		return nil
+	}
+	return d.X[i*d.P : (i+1)*d.P]
+}
 
 // Col copies design column j.
 func (d *Design) Col(j int) []float64 {
+	if d == nil || j < 0 || j >= d.P {
+		return nil
+	}
 	out := make([]float64, d.N)
 	for i := range out {
 		out[i] = d.X[i*d.P+j]
@@ -184,7 +238,12 @@ func (d *Design) Col(j int) []float64 {
 }
 
 // Roles of the study this design was resolved from.
-func (d *Design) Roles() Roles { return d.roles }
+func (d *Design) Roles() Roles {
+	if d == nil {
+		return Roles{}
+	}
+	return d.roles
+}
 
 // Design resolves the roles into arrays, once; later calls return the same
 // value. Every problem is an error naming the column (and row, where there is
@@ -273,6 +332,9 @@ func (s *Study) resolve() (*Design, error) {
 		if !incomplete[i] {
 			rows = append(rows, i)
 		}
+	}
+	if n == 0 {
+		return nil, errors.New("the data have no rows")
 	}
 	if len(rows) == 0 {
 		return nil, errors.New("no complete rows remain after dropping incomplete rows")

@@ -62,11 +62,17 @@ func (s *Support) Err() error {
 	if s == nil {
 		return errors.New("nil Support")
 	}
+	if s.err == nil && (s.Scores == nil) {
+		return errors.New("support not computed: use Scores.Support()")
+	}
 	return s.err
 }
 
 // ShareOutside is the share of all units outside the band.
 func (s *Support) ShareOutside() float64 {
+	if s.Err() != nil || s.Treated+s.Control == 0 {
+		return math.NaN()
+	}
 	return float64(s.OutsideTreated+s.OutsideControl) / float64(s.Treated+s.Control)
 }
 
@@ -191,6 +197,9 @@ func smdValue(m1, m0, v1, v0 float64) float64 {
 
 // String is the terminal view.
 func (s *Support) String() string {
+	if err := s.Err(); err != nil {
+		return "support: " + err.Error()
+	}
 	if s.err != nil {
 		return "support: " + s.err.Error()
 	}

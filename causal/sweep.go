@@ -119,6 +119,9 @@ func (sc *Scores) Sweep(est Estimator, target Estimand, alphas ...float64) *Swee
 
 // String is the terminal table.
 func (s *Sweep) String() string {
+	if err := s.Err(); err != nil {
+		return "sweep: " + err.Error()
+	}
 	if s.err != nil {
 		return "sweep: " + s.err.Error()
 	}
@@ -142,6 +145,9 @@ func (s *Sweep) String() string {
 
 // MarshalJSON is the chart payload: one entry per α.
 func (s *Sweep) MarshalJSON() ([]byte, error) {
+	if err := s.Err(); err != nil {
+		return json.Marshal(errJSON{err.Error()})
+	}
 	if s.err != nil {
 		return json.Marshal(errJSON{s.err.Error()})
 	}

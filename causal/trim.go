@@ -165,6 +165,9 @@ func (t *Trimmed) Err() error {
 	if t == nil {
 		return errors.New("nil Trimmed")
 	}
+	if t.err == nil && (t.Original == nil || t.Scores == nil || t.Design == nil) {
+		return errors.New("trimming not computed: use Scores.Trim(rule)")
+	}
 	return t.err
 }
 
@@ -353,6 +356,9 @@ func (t *Trimmed) Balance() *BalanceSheet {
 
 // String is the terminal view.
 func (t *Trimmed) String() string {
+	if err := t.Err(); err != nil {
+		return "trimmed: " + err.Error()
+	}
 	if t.err != nil {
 		return "trimming: " + t.err.Error()
 	}
@@ -378,6 +384,9 @@ func (t *Trimmed) String() string {
 
 // MarshalJSON is the pipeline view.
 func (t *Trimmed) MarshalJSON() ([]byte, error) {
+	if err := t.Err(); err != nil {
+		return json.Marshal(errJSON{err.Error()})
+	}
 	if t.err != nil {
 		return json.Marshal(errJSON{t.err.Error()})
 	}

@@ -624,6 +624,9 @@ func (sc *Scores) Verdict(o VerdictOptions, cells ...*Cells) *Verdict {
 
 // String is the terminal view.
 func (v *Verdict) String() string {
+	if err := v.Err(); err != nil {
+		return "verdict: " + err.Error()
+	}
 	if v.err != nil {
 		return "verdict: " + v.err.Error()
 	}
@@ -655,6 +658,9 @@ func (v *Verdict) String() string {
 
 // String is the terminal view of the propensity model.
 func (sc *Scores) String() string {
+	if err := sc.Err(); err != nil {
+		return "scores: " + err.Error()
+	}
 	if sc.err != nil {
 		return "propensity: " + sc.err.Error()
 	}

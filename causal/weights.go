@@ -125,6 +125,9 @@ func (w *Weights) Err() error {
 	if w == nil {
 		return errors.New("nil Weights")
 	}
+	if w.err == nil && (w.Scores == nil || w.Scores.Design == nil) {
+		return errors.New("weights not computed: use Scores.Weights(estimand)")
+	}
 	return w.err
 }
 
@@ -279,7 +282,8 @@ func kish(sum, sum2 float64) float64 {
 // (0 ≤ lo < hi ≤ 100, e.g. Truncate(1, 99)). Percentiles interpolate
 // linearly between order statistics (Hyndman & Fan 1996, definition 7, R's
 // default). Truncating trades bias for variance (Cole & Hernán 2008): the
-// weighted arms no longer represent the target population exactly.
+// weighted arms no longer represent the target population exactly. Zero
+// weights stay zero: the floor never brings back a unit the estimand excludes.
 func (w *Weights) Truncate(lo, hi float64) *Weights {
 	if err := w.Err(); err != nil {
 		return &Weights{err: err}
@@ -309,6 +313,9 @@ func (w *Weights) Truncate(lo, hi float64) *Weights {
 			b = tr.Treated
 		}
 		nv := math.Min(math.Max(v, b.Lo), b.Hi)
+		if v == 0 {
+			nv = 0 // a unit the estimand excludes (e.g. a score pinned at 0 or 1) stays excluded
+		}
 		if nv != v {
 			tr.Changed++
 		}
@@ -346,6 +353,9 @@ func (w *Weights) Balance() *BalanceSheet {
 
 // String is the terminal view.
 func (w *Weights) String() string {
+	if err := w.Err(); err != nil {
+		return "weights: " + err.Error()
+	}
 	if w.err != nil {
 		return "weights: " + w.err.Error()
 	}
@@ -367,6 +377,9 @@ func (w *Weights) String() string {
 // MarshalJSON is the pipeline view: summaries per arm (not the per-unit
 // weights, so the size stays bounded).
 func (w *Weights) MarshalJSON() ([]byte, error) {
+	if err := w.Err(); err != nil {
+		return json.Marshal(errJSON{err.Error()})
+	}
 	if w.err != nil {
 		return json.Marshal(errJSON{w.err.Error()})
 	}
