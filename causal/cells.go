@@ -128,6 +128,17 @@ func (s *Study) CellsWith(o CellOptions, columns ...string) *Cells {
 	return buildCells(d, columns, codes, cuts, o)
 }
 
+// cellsForDesign builds the positivity table of the named columns over the
+// rows of d (for example the units kept by trimming), with default options.
+func cellsForDesign(s *Study, d *Design, columns []string) *Cells {
+	o := CellOptions{}.withDefaults()
+	codes, cuts, err := discretizeAll(s, d, columns, o.Bins, "cells")
+	if err != nil {
+		return &Cells{err: err}
+	}
+	return buildCells(d, columns, codes, cuts, o)
+}
+
 // discretizeAll codes the named columns, one goroutine per column.
 func discretizeAll(s *Study, d *Design, columns []string, bins int, role string) ([][]int32, []Cut, error) {
 	codes := make([][]int32, len(columns))

@@ -76,7 +76,10 @@ type Report struct {
 	Estimates      []*Effect   `json:"estimates"`
 	Bootstrap      *Bootstrap  `json:"bootstrap"`
 	Verdict        *Verdict    `json:"verdict"`
-	Cautions       []string    `json:"cautions"`
+	// VerdictTrimmed judges the trimmed units (with --trim; null otherwise):
+	// the population the estimates describe. Gate returns it when present.
+	VerdictTrimmed *Verdict `json:"verdict_trimmed"`
+	Cautions       []string `json:"cautions"`
 
 	// Results behind the fields, for views.
 	Study   *Study        `json:"-"`
@@ -184,6 +187,17 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		}
 		r.Trimming = rt
 		est = tr.Scores
+		var tcells []*Cells
+		if cols := discreteCovariates(tr.Design); len(cols) > 0 {
+			// The positivity cells of the kept units, by the kept design's rows.
+			if c := cellsForDesign(s, tr.Design, cols); c.Err() == nil {
+				tcells = append(tcells, c)
+			}
+		}
+		r.VerdictTrimmed = est.Verdict(VerdictOptions{}, tcells...)
+		if err := r.VerdictTrimmed.Err(); err != nil {
+			return nil, err
+		}
 	}
 	w := est.Weights(o.Estimand)
 	if err := w.Err(); err != nil {
@@ -235,6 +249,18 @@ func (r *Report) Err() error {
 	return nil
 }
 
+// Gate is the verdict a pipeline gate should judge: the trimmed units' when
+// the report trims (the population the estimates describe), else the data's.
+func (r *Report) Gate() *Verdict {
+	if err := r.Err(); err != nil {
+		return &Verdict{err: err}
+	}
+	if r.VerdictTrimmed != nil {
+		return r.VerdictTrimmed
+	}
+	return r.Verdict
+}
+
 // String is the short text summary printed by the report command.
 func (r *Report) String() string {
 	if err := r.Err(); err != nil {
@@ -279,6 +305,9 @@ func (r *Report) String() string {
 		fmt.Fprintf(&b, " — %s", strings.Join(r.Verdict.Reasons, "; "))
 	}
 	fmt.Fprintf(&b, "\nsupported estimands: %s\n", strings.Join(r.Verdict.Supported, ", "))
+	if v := r.VerdictTrimmed; v != nil {
+		fmt.Fprintf(&b, "verdict on the trimmed units: %s; supported estimands there: %s\n", strings.ToUpper(v.Status), strings.Join(v.Supported, ", "))
+	}
 	b.WriteString("caution: " + Cautions[0] + "\n")
 	return b.String()
 }

@@ -37,7 +37,7 @@ func reportCommand() *command {
 		seed := fs.Uint64("seed", 1, "seed of the bootstrap")
 		jsonOut := fs.String("json", "", "write the report JSON to FILE, or - for stdout")
 		htmlOut := fs.String("html", "", "write a self-contained HTML report to FILE")
-		failOn := fs.String("fail-on", "", "exit 3 when the verdict is this bad: violated, or limited (limited or violated)")
+		failOn := fs.String("fail-on", "", "exit 3 when the verdict is this bad: violated, or limited (limited or violated); with --trim the verdict on the trimmed units is judged")
 		dropIncomplete := fs.Bool("drop-incomplete", false, "drop rows with a missing value in a role column (counted in the report) instead of stopping")
 		pos, err := parse(c, fs, args)
 		if err != nil {
@@ -122,7 +122,7 @@ func reportCommand() *command {
 		if *jsonOut != "-" {
 			fmt.Print(r.String())
 		}
-		status := r.Verdict.Status
+		status := r.Gate().Status
 		if gate == causal.Violated && status == causal.Violated || gate == causal.Limited && (status == causal.Limited || status == causal.Violated) {
 			return exitCode(3, fmt.Errorf("positivity gate: the verdict is %s (--fail-on %s)", status, gate))
 		}

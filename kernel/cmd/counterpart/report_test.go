@@ -285,3 +285,24 @@ func TestReportSeededBootstrapIsReproducible(t *testing.T) {
 		t.Error("two seeded runs gave different JSON")
 	}
 }
+
+// With --trim the gate judges the kept units (the population the estimates
+// describe): the water scenario fails the gate as it is and passes it once
+// trimmed to scores in [0.1, 0.9], with both verdicts in the JSON.
+func TestReportGateJudgesTrimmedUnits(t *testing.T) {
+	data := "../../../testdata/water_audits.csv"
+	args := []string{"report", "--data", data, "--treatment", "audit", "--treated-level", "yes", "--outcome", "litres_per_day",
+		"--covariates", "household_size,lot_m2,home_age,last_summer_lpd,pool,district,income_band", "--fail-on", "violated"}
+	if r := runCmd(t, args...); r.code != 3 {
+		t.Fatalf("untrimmed: exit %d, want 3 (harbour was never offered audits)", r.code)
+	}
+	js := filepath.Join(t.TempDir(), "t.json")
+	r := runCmd(t, append(args, "--trim", "0.1", "--json", js)...)
+	if r.code != 0 {
+		t.Fatalf("trimmed: exit %d: %s\n%s", r.code, r.stderr, r.stdout)
+	}
+	m := validate(t, js)
+	if m["verdict"].(map[string]any)["status"] != "violated" || m["verdict_trimmed"].(map[string]any)["status"] == "violated" {
+		t.Errorf("verdicts: data %v, trimmed %v", m["verdict"], m["verdict_trimmed"])
+	}
+}
