@@ -215,7 +215,11 @@ type Effect struct {
 	Mu1, Mu0 float64
 	MuCov    [3]float64
 	// Population says whose average effect this is.
-	Population  string
+	Population string
+	// Supported says whether the data support the estimand, judged by the
+	// verdict's rules with the default VerdictOptions and the positivity
+	// cells passed to Effect/Effects; Unsupported gives the reasons. A
+	// Verdict built with other options may judge differently.
 	Supported   bool
 	Unsupported string
 	Flags       []Flag
