@@ -3,6 +3,7 @@ package causal
 import (
 	"fmt"
 	"math"
+	"os"
 	"strings"
 	"testing"
 )
@@ -236,5 +237,30 @@ func TestSeparationVariants(t *testing.T) {
 		if math.IsNaN(e) || e < 0 || e > 1 {
 			t.Fatalf("score %d = %g", i, e)
 		}
+	}
+}
+
+func TestLoadProgressReachesTotal(t *testing.T) {
+	var b strings.Builder
+	b.WriteString("x,y,t\n")
+	for i := 0; i < 120000; i++ {
+		fmt.Fprintf(&b, "%d.25,%d,%d\n", i, i%7, i%2)
+	}
+	path := t.TempDir() + "/big.csv"
+	if err := os.WriteFile(path, []byte(b.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	var calls, last, total int
+	s := LoadProgress(path, func(done, tot int) {
+		if done < last || done > tot {
+			t.Errorf("progress %d of %d after %d", done, tot, last)
+		}
+		calls, last, total = calls+1, done, tot
+	})
+	if s.Err() != nil || s.Source().Rows() != 120000 {
+		t.Fatalf("%v", s.Err())
+	}
+	if calls < 2 || last != total || total != b.Len() {
+		t.Errorf("%d calls, last %d of %d (file %d bytes)", calls, last, total, b.Len())
 	}
 }

@@ -260,20 +260,40 @@ func categorical(name string, v []string) *Column {
 // the format. When no field after the header is quoted, line ends are record
 // ends, and the file is cut at line ends into pieces read by encoding/csv on
 // every core at once; otherwise it is read by one encoding/csv reader.
-func ReadCSV(path string) (*Frame, error) {
+func ReadCSV(path string) (*Frame, error) { return ReadCSVProgress(path, nil) }
+
+// ReadCSVProgress is ReadCSV reporting progress in bytes parsed of the
+// file's size (progress may be nil; it is called from one goroutine at a
+// time, at most once per block of rows).
+func ReadCSVProgress(path string, progress func(done, total int)) (*Frame, error) {
 	data, err := os.ReadFile(path)
 	if err != nil {
 		return nil, fmt.Errorf("cannot open data file: %w", err)
 	}
-	f, err := parseBytes(data)
+	f, err := parseBytes(data, progress)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	if progress != nil {
+		progress(len(data), len(data))
 	}
 	f.file = path
 	return f, nil
 }
 
-func parseBytes(data []byte) (*Frame, error) {
+func parseBytes(data []byte, progress func(done, total int)) (*Frame, error) {
+	total := len(data)
+	var pmu sync.Mutex
+	done := 0
+	report := func(n int) {
+		if progress == nil {
+			return
+		}
+		pmu.Lock()
+		done += n
+		progress(min(done, total), total)
+		pmu.Unlock()
+	}
 	data = bytes.TrimPrefix(data, []byte{0xEF, 0xBB, 0xBF})
 	cr := csv.NewReader(bytes.NewReader(data))
 	cr.FieldsPerRecord = -1
@@ -286,7 +306,11 @@ func parseBytes(data []byte) (*Frame, error) {
 	}
 	body := data[cr.InputOffset():]
 	if len(body) < 1<<20 || bytes.IndexByte(body, '"') >= 0 {
-		return ParseCSV(bytes.NewReader(data))
+		return parseCSV(bytes.NewReader(data), func(offset int) {
+			if progress != nil {
+				progress(min(offset, total), total)
+			}
+		})
 	}
 	names, err := checkHeader(header)
 	if err != nil {
@@ -367,6 +391,7 @@ func parseBytes(data []byte) (*Frame, error) {
 			}
 			flush()
 			r.rows = row - 1
+			report(len(chunks[c]))
 		}(c)
 	}
 	wg.Wait()
@@ -451,7 +476,11 @@ type csvBatchOut struct {
 //
 // Rows are numbered as in a spreadsheet's data area: row 1 is the first line
 // after the header.
-func ParseCSV(r io.Reader) (*Frame, error) {
+func ParseCSV(r io.Reader) (*Frame, error) { return parseCSV(r, nil) }
+
+// parseCSV is ParseCSV calling offset (when not nil) with the bytes read so
+// far after each block of rows.
+func parseCSV(r io.Reader, offset func(int)) (*Frame, error) {
 	br := bufio.NewReader(r)
 	// Skip a UTF-8 BOM.
 	if b, err := br.Peek(3); err == nil && bytes.Equal(b, []byte{0xEF, 0xBB, 0xBF}) {
@@ -516,6 +545,9 @@ func ParseCSV(r io.Reader) (*Frame, error) {
 			row++
 			if len(batch) == csvBatch {
 				in <- csvBatchIn{seq: seq, row0: row - len(batch), recs: batch}
+				if offset != nil {
+					offset(int(cr.InputOffset()))
+				}
 				seq++
 				batch = make([][]string, 0, csvBatch)
 			}

@@ -35,8 +35,12 @@ type Study struct {
 }
 
 // Load reads a CSV file (see ParseCSV) into a new Study with no roles yet.
-func Load(path string) *Study {
-	f, err := ReadCSV(path)
+func Load(path string) *Study { return LoadProgress(path, nil) }
+
+// LoadProgress is Load reporting progress (bytes parsed of the file's size)
+// to progress, which may be nil; kernel.Load shows it as a progress bar.
+func LoadProgress(path string, progress func(done, total int)) *Study {
+	f, err := ReadCSVProgress(path, progress)
 	s := &Study{file: path, err: err}
 	if err == nil {
 		s.src = f

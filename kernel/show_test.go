@@ -501,3 +501,10 @@ func ExampleProgress() {
 	}
 	// Output:
 }
+
+func ExampleLoad() {
+	s := Load("../testdata/nsw_dehejia_wahba.csv").Treat("treat").Adjust("age")
+	d, err := s.Design()
+	fmt.Println(err, d.N)
+	// Output: <nil> 445
+}
