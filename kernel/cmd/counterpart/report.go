@@ -21,7 +21,7 @@ func reportCommand() *command {
 		usage:   "counterpart report --data FILE --treatment COL --outcome COL --covariates a,b,c [flags]",
 		example: "counterpart report --data testdata/water_audits.csv --treatment audit --treated-level yes \\\n" +
 			"    --outcome litres_per_day --covariates household_size,lot_m2,home_age,last_summer_lpd,pool,district,income_band \\\n" +
-			"    --estimand ATT --json report.json --html report.html --fail-on violated\n" +
+			"    --estimand ATO --json report.json --html report.html --fail-on violated\n" +
 			"exit status: 0 ran (and the gate passed); 1 usage or data error; 3 the --fail-on gate tripped (files are still written)",
 	}
 	c.run = func(args []string) error {
