@@ -254,3 +254,33 @@ func TestQuantilesOfLarge(t *testing.T) {
 		}
 	}
 }
+
+// The radix sort behind the AUC must order like the standard library's sort.
+func TestSortScoresRunMatchesSort(t *testing.T) {
+	r := rand.New(rand.NewPCG(4, 4))
+	for _, n := range []int{10, 5000, 100000} {
+		for _, kind := range []string{"uniform", "ties", "tiny", "negative"} {
+			x := make([]float64, n)
+			for i := range x {
+				switch kind {
+				case "uniform":
+					x[i] = r.Float64()
+				case "ties":
+					x[i] = float64(r.IntN(5)) / 4
+				case "tiny":
+					x[i] = r.Float64() * 1e-300
+				case "negative":
+					x[i] = r.NormFloat64()
+				}
+			}
+			want := append([]float64(nil), x...)
+			sort.Float64s(want)
+			sortScoresRun(x)
+			for i := range x {
+				if x[i] != want[i] {
+					t.Fatalf("n=%d %s: position %d is %g, want %g", n, kind, i, x[i], want[i])
+				}
+			}
+		}
+	}
+}

@@ -135,6 +135,9 @@ func fitLogistic(X []float64, n, p int, t, fw, start []float64, o logitOptions) 
 		return nil, errors.New("all units are in one arm")
 	}
 	nullDev := -2 * sw * (pbar*math.Log(pbar) + (1-pbar)*math.Log(1-pbar))
+	if start == nil && fw == nil && !o.lean && n >= subsampleFrom {
+		start = subsampleStart(X, n, p, t, o)
+	}
 	if start != nil && len(start) == p {
 		copy(beta, start)
 	} else {
@@ -318,4 +321,33 @@ func fitLogistic(X []float64, n, p int, t, fw, start []float64, o logitOptions) 
 		return nil, fmt.Errorf("the propensity fit failed numerically after %d iterations", fit.iterations)
 	}
 	return fit, nil
+}
+
+// subsampleFrom is the number of rows from which a fit starts from the fit
+// of a systematic 1-in-20 subsample.
+const subsampleFrom = 200000
+
+// subsampleStart fits every 20th row and returns its coefficients as a warm
+// start (nil when that fit fails or does not converge). The subsample's
+// maximum lies within O(1/√(n/20)) of the full one, so Newton's method on the
+// full data then needs one or two steps fewer; it converges to the same
+// maximum either way.
+func subsampleStart(X []float64, n, p int, t []float64, o logitOptions) []float64 {
+	m := n / 20
+	xs := make([]float64, 0, m*p)
+	ts := make([]float64, 0, m)
+	for i := 0; i < n && len(ts) < m; i += 20 {
+		xs = append(xs, X[i*p:(i+1)*p]...)
+		ts = append(ts, t[i])
+	}
+	fit, err := fitLogistic(xs, len(ts), p, ts, nil, nil, o)
+	if err != nil || !fit.converged {
+		return nil
+	}
+	for _, b := range fit.beta {
+		if math.IsNaN(b) || math.IsInf(b, 0) {
+			return nil
+		}
+	}
+	return fit.beta
 }
