@@ -263,4 +263,12 @@ func TestLoadProgressReachesTotal(t *testing.T) {
 	if calls < 2 || last != total || total != b.Len() {
 		t.Errorf("%d calls, last %d of %d (file %d bytes)", calls, last, total, b.Len())
 	}
+	// The parallel reader (unquoted body over 1 MB) keeps every value in place.
+	x, _ := s.Source().Column("x")
+	y, _ := s.Source().Column("y")
+	for i := 0; i < 120000; i++ {
+		if x.Num[i] != float64(i)+0.25 || y.Num[i] != float64(i%7) {
+			t.Fatalf("row %d: x %g y %g", i+1, x.Num[i], y.Num[i])
+		}
+	}
 }

@@ -359,12 +359,17 @@ func parseBytes(data []byte, progress func(done, total int)) (*Frame, error) {
 			r := &results[c]
 			cr := csv.NewReader(bytes.NewReader(chunks[c]))
 			cr.FieldsPerRecord = -1
+			// Each batch is parsed here before the next is read, so the record
+			// slice and one flat buffer of field headers are reused: the
+			// fields' text is never copied and no slice is allocated per row.
+			cr.ReuseRecord = true
+			flat := make([]string, csvBatch*p)
 			batch := make([][]string, 0, csvBatch)
 			row := 1
 			flush := func() {
 				if len(batch) > 0 {
 					r.parts = append(r.parts, parseBatch(csvBatchIn{seq: len(r.parts), row0: row - len(batch), recs: batch}, p))
-					batch = make([][]string, 0, csvBatch)
+					batch = batch[:0]
 				}
 			}
 			for {
@@ -383,7 +388,9 @@ func parseBytes(data []byte, progress func(done, total int)) (*Frame, error) {
 					r.err, r.errAt = fmt.Errorf("has %d fields but the header has %d: check for a missing or extra comma (quote fields that contain commas)", len(rec), p), row
 					return
 				}
-				batch = append(batch, rec)
+				k := len(batch)
+				copy(flat[k*p:(k+1)*p], rec)
+				batch = append(batch, flat[k*p:(k+1)*p])
 				row++
 				if len(batch) == csvBatch {
 					flush()
