@@ -201,14 +201,22 @@ func discretize(c *Column, rows []int, bins int) ([]int32, Cut, error) {
 		cut.Kind = "levels"
 		return codes, cut, nil
 	}
-	vals := make([]float64, len(rows))
+	// The column itself when every row is used (it is only read), else a copy
+	// of the used rows.
+	identity := len(rows) == len(c.Num)
+	vals := c.Num
+	if !identity {
+		vals = make([]float64, len(rows))
+	}
 	lo, hi := math.Inf(1), math.Inf(-1)
 	for r, i := range rows {
 		v := c.Num[i]
 		if math.IsNaN(v) {
 			return nil, cut, fmt.Errorf("cells: column %q has missing values in rows the study uses (row %d): fill them in or drop those rows", c.Name, i+1)
 		}
-		vals[r] = v
+		if !identity {
+			vals[r] = v
+		}
 		if v < lo {
 			lo = v
 		}
