@@ -2,6 +2,7 @@ package causal_test
 
 import (
 	"fmt"
+	"math"
 
 	"github.com/counterpartlab/counterpart/causal"
 )
@@ -98,4 +99,50 @@ func ExampleStudy_String() {
 	//   outcome    re78
 	//   covariates age, educ, black, hisp, married, nodegr, re74, re75
 	//   rows used  445 (185 treated, 260 control; 0 incomplete rows dropped); 9 design terms
+}
+
+func waterAll() *causal.Study {
+	return causal.Load("../testdata/water_audits.csv").Treat("audit").TreatedLevel("yes").
+		Outcome("litres_per_day").
+		Adjust("household_size", "lot_m2", "home_age", "last_summer_lpd", "pool", "district", "income_band")
+}
+
+func ExampleStudy_TreatedLevel() {
+	d, _ := waterAll().Design()
+	fmt.Println(d.Treated, "audited of", d.N)
+	// Output: 1048 audited of 4000
+}
+
+func ExampleStudy_DropIncomplete() {
+	s := causal.FromColumns([]string{"x", "t"},
+		map[string][]float64{"x": {1, math.NaN(), 3, 4, 5, 6}, "t": {0, 1, 0, 1, 0, 1}}, nil).Treat("t").Adjust("x")
+	fmt.Println(s.Err())
+	d, _ := s.DropIncomplete().Design()
+	fmt.Println(d.N, "rows used,", d.RowsDropped, "dropped")
+	// Output:
+	// missing values in x (1): 1 row is incomplete; fill them in, or call .DropIncomplete() to drop those rows (the report then says how many were dropped)
+	// 5 rows used, 1 dropped
+}
+
+func ExampleStudy_CellsWith() {
+	c := waterAll().CellsWith(causal.CellOptions{Bins: 10, Thin: 5}, "lot_m2", "pool")
+	fmt.Printf("%d cells, %d violating, %d thin\n", len(c.Rows), c.Violating, c.ThinCells)
+	// Output: 20 cells, 0 violating, 4 thin
+}
+
+func ExampleStudy_ErosionGreedy() {
+	e := waterAll().ErosionGreedy()
+	last := e.Steps[len(e.Steps)-1]
+	fmt.Printf("order %v; with all: %.1f%% of units in cells with both arms\n", e.Order, 100*last.ShareBoth)
+	// Output: order [household_size lot_m2 income_band pool last_summer_lpd district home_age]; with all: 23.9% of units in cells with both arms
+}
+
+func ExampleBuildReport() {
+	r, err := causal.BuildReport(nsw(), causal.ReportOptions{Estimand: causal.ATE})
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	fmt.Println(r.Schema, r.Verdict.Status, len(r.Estimates), "estimates")
+	// Output: counterpart.report/v1 adequate 5 estimates
 }
