@@ -83,6 +83,7 @@ type Cells struct {
 	N                int
 	// code of each used row's cell (index into Rows); for drill-down.
 	cellOf []int32
+	design *Design // the rows the table counts
 	err    error
 }
 
@@ -128,10 +129,58 @@ func (s *Study) CellsWith(o CellOptions, columns ...string) *Cells {
 	return buildCells(d, columns, codes, cuts, o)
 }
 
+// Cells builds the positivity table of the named columns over the units of
+// these scores (for scores refitted after trimming: the kept units), so that
+// it can be passed to Verdict and Effect. Default options.
+func (sc *Scores) Cells(columns ...string) *Cells { return sc.CellsWith(CellOptions{}, columns...) }
+
+// CellsWith is Scores.Cells with options.
+func (sc *Scores) CellsWith(o CellOptions, columns ...string) *Cells {
+	if err := sc.Err(); err != nil {
+		return &Cells{err: err}
+	}
+	if sc.Design.study == nil {
+		return &Cells{err: errors.New("cells: these scores do not come from a Study; use Study.Cells")}
+	}
+	if len(columns) == 0 {
+		return &Cells{err: errors.New("cells: name at least one covariate")}
+	}
+	return cellsForDesignWith(sc.Design.study, sc.Design, columns, o)
+}
+
+// Cells builds the positivity table over the kept units (see Scores.Cells).
+func (t *Trimmed) Cells(columns ...string) *Cells {
+	if err := t.Err(); err != nil {
+		return &Cells{err: err}
+	}
+	return t.Scores.Cells(columns...)
+}
+
+// sameRows reports whether the table counts the rows of design d, and
+// errs naming the mismatch (cells built on the whole study passed with
+// scores refitted on trimmed units, say).
+func (c *Cells) sameRows(d *Design) error {
+	if c.design == d {
+		return nil
+	}
+	same := c.design != nil && c.N == d.N && len(c.design.Rows) == len(d.Rows)
+	for i := 0; same && i < len(d.Rows); i++ {
+		same = c.design.Rows[i] == d.Rows[i]
+	}
+	if !same {
+		return fmt.Errorf("cells (%s) count %d rows, but these scores are for %d other or different units: build the table for these units with scores.Cells(...) (after trimming: trimmed.Cells(...))", strings.Join(c.Columns, " × "), c.N, d.N)
+	}
+	return nil
+}
+
 // cellsForDesign builds the positivity table of the named columns over the
 // rows of d (for example the units kept by trimming), with default options.
 func cellsForDesign(s *Study, d *Design, columns []string) *Cells {
-	o := CellOptions{}.withDefaults()
+	return cellsForDesignWith(s, d, columns, CellOptions{})
+}
+
+func cellsForDesignWith(s *Study, d *Design, columns []string, o CellOptions) *Cells {
+	o = o.withDefaults()
 	codes, cuts, err := discretizeAll(s, d, columns, o.Bins, "cells")
 	if err != nil {
 		return &Cells{err: err}
@@ -311,7 +360,7 @@ func buildCells(d *Design, columns []string, codes [][]int32, cuts []Cut, o Cell
 			key[i] += int64(v) * st
 		}
 	}
-	c := &Cells{Columns: columns, Cuts: cuts, Options: o, N: n, cellOf: make([]int32, n)}
+	c := &Cells{Columns: columns, Cuts: cuts, Options: o, N: n, cellOf: make([]int32, n), design: d}
 	if total <= 1<<22 {
 		n1 := make([]int32, total)
 		n0 := make([]int32, total)

@@ -289,6 +289,10 @@ func (sc *Scores) Effect(est Estimator, target Estimand, cells ...*Cells) *Effec
 			eff.err = err
 			return eff
 		}
+		if err := c.sameRows(sc.Design); err != nil {
+			eff.err = err
+			return eff
+		}
 	}
 	d := sc.Design
 	if d.Y == nil {

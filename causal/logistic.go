@@ -340,7 +340,9 @@ func subsampleStart(X []float64, n, p int, t []float64, o logitOptions) []float6
 		xs = append(xs, X[i*p:(i+1)*p]...)
 		ts = append(ts, t[i])
 	}
-	fit, err := fitLogistic(xs, len(ts), p, ts, nil, nil, o)
+	so := o
+	so.maxIter = 12 // a start, not an answer: give up early on a hard subsample
+	fit, err := fitLogistic(xs, len(ts), p, ts, nil, nil, so)
 	if err != nil || !fit.converged {
 		return nil
 	}

@@ -82,9 +82,10 @@ type Report struct {
 	Cautions       []string `json:"cautions"`
 
 	// Results behind the fields, for views.
-	Study   *Study        `json:"-"`
-	Trimmed *Trimmed      `json:"-"`
-	Options ReportOptions `json:"-"`
+	Study        *Study   `json:"-"`
+	Trimmed      *Trimmed `json:"-"`
+	trimmedCells []*Cells
+	Options      ReportOptions `json:"-"`
 }
 
 // ParseTrim reads the --trim value: none, optimal, or α in [0, 0.5).
@@ -190,10 +191,13 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		var tcells []*Cells
 		if cols := discreteCovariates(tr.Design); len(cols) > 0 {
 			// The positivity cells of the kept units, by the kept design's rows.
-			if c := cellsForDesign(s, tr.Design, cols); c.Err() == nil {
-				tcells = append(tcells, c)
+			c := tr.Cells(cols...)
+			if err := c.Err(); err != nil {
+				return nil, err
 			}
+			tcells = append(tcells, c)
 		}
+		r.trimmedCells = tcells
 		r.VerdictTrimmed = est.Verdict(VerdictOptions{}, tcells...)
 		if err := r.VerdictTrimmed.Err(); err != nil {
 			return nil, err
@@ -209,9 +213,9 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		r.Balance = w.Balance()
 		r.BalanceWeights = weightLabel(o.Estimand)
 	}
-	var estCells []*Cells
-	if !trim {
-		estCells = cells
+	estCells := cells
+	if trim {
+		estCells = r.trimmedCells
 	}
 	es := est.Effects(o.Estimand, estCells...)
 	if err := es.Err(); err != nil {

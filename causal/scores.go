@@ -78,6 +78,9 @@ type Scores struct {
 	cov  []float64
 	opts logitOptions
 	err  error
+	// trimAlpha is the α of the symmetric trimming these scores were
+	// refitted after (0: none); see verdictDefaults.
+	trimAlpha float64
 }
 
 // Err returns why the scores could not be computed, or nil.
@@ -330,7 +333,7 @@ func subDesign(d *Design, rows []int, force map[int]bool) (*Design, []int, bool)
 			nonzero = true
 		}
 	}
-	s := &Design{N: len(rows), RowsTotal: d.RowsTotal, P: len(kc), Covariates: d.Covariates, roles: d.roles}
+	s := &Design{N: len(rows), RowsTotal: d.RowsTotal, P: len(kc), Covariates: d.Covariates, roles: d.roles, study: d.study}
 	s.X = make([]float64, s.N*s.P)
 	s.T = make([]float64, s.N)
 	s.Rows = make([]int, s.N)
@@ -553,9 +556,10 @@ func termIndex(d *Design, name string) int {
 
 type scoreT struct{ e, t float64 }
 
-// sortScores pairs scores with treatment and sorts by score. Each arm's
-// scores are sorted on its own core (slices.Sort) and the two runs merged;
-// at equal scores treated units come first.
+// sortScores pairs scores with treatment and sorts by score: each arm's
+// scores in two halves sorted concurrently (sortScoresRun) and merged, then
+// the arms merged; at equal scores treated units come first (the AUC's
+// mid-ranks and the calibration bins do not depend on order within ties).
 func sortScores(e, t []float64) []scoreT {
 	var e1, e0 []float64
 	for i, v := range e {
@@ -605,6 +609,9 @@ func sortScoresRun(x []float64) {
 		if !(v >= 0) { // negative or NaN
 			slices.Sort(x)
 			return
+		}
+		if v == 0 {
+			v = 0 // −0 as +0 (equal values; −0's bits would sort last)
 		}
 		keys[i] = math.Float64bits(v)
 	}

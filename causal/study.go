@@ -218,7 +218,8 @@ type Design struct {
 	Control     int
 	Covariates  []*Column // the covariate columns as read
 	roles       Roles
-	parent      []int // for a sub-design: row index in the full design
+	parent      []int  // for a sub-design: row index in the full design
+	study       *Study // the study it was resolved from (for cells over its rows)
 }
 
 // Row returns row i of the design matrix (a view, do not modify).
@@ -349,7 +350,7 @@ func (s *Study) resolve() (*Design, error) {
 	if err != nil {
 		return nil, err
 	}
-	d := &Design{N: len(rows), RowsTotal: n, RowsDropped: nInc, Rows: rows, T: t, Covariates: covs, roles: s.Roles()}
+	d := &Design{N: len(rows), RowsTotal: n, RowsDropped: nInc, Rows: rows, T: t, Covariates: covs, roles: s.Roles(), study: s}
 	for _, v := range t {
 		if v == 1 {
 			d.Treated++

@@ -260,6 +260,9 @@ func (sc *Scores) Trim(rule TrimRule) *Trimmed {
 	}
 	tr.Design = sub
 	tr.Scores = propensityFor(sub, sc.opts)
+	if !math.IsNaN(tr.Alpha) && tr.Alpha > 0 {
+		tr.Scores.trimAlpha = tr.Alpha
+	}
 	if err := tr.Scores.Err(); err != nil {
 		tr.err = fmt.Errorf("trim: refitting the propensity model on the %d kept units: %w", sub.N, err)
 		return tr

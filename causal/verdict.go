@@ -29,6 +29,17 @@ type VerdictOptions struct {
 	MaxShareExtreme float64
 }
 
+// verdictDefaults fills in the defaults. For scores refitted on the units
+// kept by symmetric trimming at α, the default Extreme is that α: the user
+// has chosen how extreme a score may be, and judging the kept units by a
+// stricter bound would withdraw what the trimming was meant to support.
+func (sc *Scores) verdictDefaults(o VerdictOptions) VerdictOptions {
+	if o.Extreme == 0 && sc.trimAlpha > 0 {
+		o.Extreme = sc.trimAlpha
+	}
+	return o.withDefaults()
+}
+
 // validate rejects thresholds that cannot mean anything. Zero means the
 // default; to be stricter than a default, give a small positive value.
 func (o VerdictOptions) validate() error {
@@ -143,7 +154,7 @@ func (sc *Scores) supportBand() *Support {
 }
 
 func (sc *Scores) positivity(o VerdictOptions, cells []*Cells) *positivity {
-	o = o.withDefaults()
+	o = sc.verdictDefaults(o)
 	pf := &positivity{reasons: []string{}, notes: []string{}}
 	sup := sc.supportBand()
 	pf.sup = sup
@@ -240,7 +251,16 @@ func (sc *Scores) positivity(o VerdictOptions, cells []*Cells) *positivity {
 					cThin += r.Control
 				}
 			}
+			// mark sets mask for the units of arm t in the cells that pass in.
+			mark := func(mask []bool, t float64, in func(r Cell) bool) {
+				for i := 0; i < d.N && i < len(c.cellOf); i++ {
+					if d.T[i] == t && in(c.Rows[c.cellOf[i]]) {
+						mask[i] = true
+					}
+				}
+			}
 			if share := float64(tThin) / float64(d.Treated); share > o.MaxShareOutside {
+				mark(pf.treatedAlone, 1, func(r Cell) bool { return !r.Structural && r.Control < c.Options.Thin })
 				pf.treatedOnly, pf.limited = true, true
 				msg := fmt.Sprintf("positivity cells (%s): %d treated units (%.1f%% of the treated) are in cells with fewer than %d controls: their comparisons rest on a handful of controls (threshold %.0f%% of the arm)",
 					cols, tThin, 100*share, c.Options.Thin, 100*o.MaxShareOutside)
@@ -248,6 +268,7 @@ func (sc *Scores) positivity(o VerdictOptions, cells []*Cells) *positivity {
 				pf.reasons = append(pf.reasons, msg)
 			}
 			if share := float64(cThin) / float64(d.Control); share > o.MaxShareOutside {
+				mark(pf.controlsAlone, 0, func(r Cell) bool { return !r.Structural && r.Treated < c.Options.Thin })
 				pf.controlOnly, pf.limited = true, true
 				msg := fmt.Sprintf("positivity cells (%s): %d controls (%.1f%% of the controls) are in cells with fewer than %d treated units: their comparisons rest on a handful of treated units (threshold %.0f%% of the arm)",
 					cols, cThin, 100*share, c.Options.Thin, 100*o.MaxShareOutside)
@@ -324,6 +345,11 @@ func (sc *Scores) positivity(o VerdictOptions, cells []*Cells) *positivity {
 	// above (1 − Extreme)/Extreme; likewise controls below Extreme for the
 	// ATC. More than MaxShareExtreme of an arm there withdraws that estimand.
 	if share := float64(tHigh) / float64(d.Treated); share > o.MaxShareExtreme && !pf.noOverlap {
+		for i, e := range sc.E {
+			if d.T[i] == 1 && e > 1-o.Extreme {
+				pf.treatedAlone[i] = true
+			}
+		}
 		pf.treatedOnly, pf.limited = true, true
 		msg := fmt.Sprintf("%.1f%% of the treated units (%d) have scores above %.2f: few comparable controls, each carrying an ATT weight above %.0f (threshold %.0f%% of the arm)",
 			100*share, tHigh, 1-o.Extreme, (1-o.Extreme)/o.Extreme, 100*o.MaxShareExtreme)
@@ -331,6 +357,11 @@ func (sc *Scores) positivity(o VerdictOptions, cells []*Cells) *positivity {
 		pf.reasons = append(pf.reasons, msg)
 	}
 	if share := float64(cLow) / float64(d.Control); share > o.MaxShareExtreme && !pf.noOverlap {
+		for i, e := range sc.E {
+			if d.T[i] == 0 && e < o.Extreme {
+				pf.controlsAlone[i] = true
+			}
+		}
 		pf.controlOnly, pf.limited = true, true
 		msg := fmt.Sprintf("%.1f%% of the controls (%d) have scores below %.2f: few comparable treated units, each carrying an ATC weight above %.0f (threshold %.0f%% of the arm)",
 			100*share, cLow, o.Extreme, (1-o.Extreme)/o.Extreme, 100*o.MaxShareExtreme)
@@ -587,11 +618,14 @@ func (sc *Scores) Verdict(o VerdictOptions, cells ...*Cells) *Verdict {
 		if err := c.Err(); err != nil {
 			return &Verdict{err: err}
 		}
+		if err := c.sameRows(sc.Design); err != nil {
+			return &Verdict{err: err}
+		}
 	}
 	if err := o.validate(); err != nil {
 		return &Verdict{err: err}
 	}
-	o = o.withDefaults()
+	o = sc.verdictDefaults(o)
 	pf := sc.positivity(o, cells)
 	v := &Verdict{Options: o, TrimThreshold: o.Extreme, Reasons: pf.reasons, Notes: pf.notes, Supported: []string{}}
 	d := sc.Design

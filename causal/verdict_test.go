@@ -2,6 +2,7 @@ package causal
 
 import (
 	"fmt"
+	"math"
 	"math/rand/v2"
 	"strings"
 	"testing"
@@ -70,4 +71,46 @@ func ExampleVerdictOptions() {
 	strict := sc.Verdict(VerdictOptions{Extreme: 0.25, MaxShareExtreme: 0.05})
 	fmt.Println(strict.Status)
 	// Output: limited
+}
+
+// Cells built on the whole study cannot judge scores refitted on trimmed
+// units: an error names the fix; cells of the kept units work.
+func TestCellsMustCountTheScoresUnits(t *testing.T) {
+	s := Load("../testdata/water_audits.csv").Treat("audit").TreatedLevel("yes").Outcome("litres_per_day").
+		Adjust("district", "household_size", "home_age")
+	tr := s.Propensity().Trim(Symmetric(0.1))
+	if tr.Err() != nil {
+		t.Fatal(tr.Err())
+	}
+	whole := s.Cells("district")
+	if v := tr.Scores.Verdict(VerdictOptions{}, whole); v.Err() == nil || !strings.Contains(v.Err().Error(), "trimmed.Cells") {
+		t.Errorf("verdict accepted cells of other units: %v", v.Err())
+	}
+	if e := tr.Effect(AIPW, ATE, whole); e.Err() == nil {
+		t.Error("effect accepted cells of other units")
+	}
+	kept := tr.Cells("district")
+	v := tr.Scores.Verdict(VerdictOptions{}, kept)
+	if v.Err() != nil || v.Status == Violated {
+		t.Errorf("kept units: %v %s %v", v.Err(), v.Status, v.Reasons)
+	}
+	for _, r := range kept.Rows {
+		if r.Labels[0] == "harbour" {
+			t.Errorf("harbour survived trimming at 0.1: %+v", r)
+		}
+	}
+}
+
+func TestSortScoresRunNegativeZero(t *testing.T) {
+	x := make([]float64, 5000)
+	for i := range x {
+		x[i] = float64(i%97) / 97
+	}
+	x[10] = math.Copysign(0, -1)
+	sortScoresRun(x)
+	for i := 1; i < len(x); i++ {
+		if x[i] < x[i-1] {
+			t.Fatalf("unsorted at %d: %g after %g", i, x[i], x[i-1])
+		}
+	}
 }

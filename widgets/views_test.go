@@ -161,9 +161,8 @@ func TestHeadlines(t *testing.T) {
 		{r.Estimates, []string{"estimates the ATE at", "do not support the ATE"}},
 		{r.Effect, []string{"IPW, normalised (Hájek) estimates the ATE at", "extrapolation"}},
 		{r.Trimmed, []string{"Trimming keeps", "scores in [0.050, 0.950]", "not the original population"}},
-		// Trimmed at 0.05, more than 10% of the refitted controls still score
-		// below 0.1: the verdict rules keep the trimmed ATE flagged.
-		{r.TrimmedEs, []string{"estimates the ATE at", "do not support the ATE"}},
+		// Trimmed at 0.05: the kept units are judged with Extreme = 0.05.
+		{r.TrimmedEs, []string{"for the trimmed population only"}},
 		{r.Bootstrap, []string{"Bootstrap of IPW, normalised (Hájek), ATE (12 replicates, seed 5)"}},
 		{r.Sweep, []string{"As α rises from 0.00 to 0.20", "optimal α of Crump et al. (2009)"}},
 	}

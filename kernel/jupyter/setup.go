@@ -117,7 +117,9 @@ func Setup(ctx context.Context, o SetupOptions) (*Installed, error) {
 	t0 = time.Now()
 	did, err = warmModules(ctx, goCmd, filepath.Join(cache, "proxy"), version, o.Force)
 	if err != nil {
-		return nil, err
+		// Not fatal: a module cache filled earlier may already hold all a
+		// notebook needs. Say plainly what may fail.
+		did = fmt.Sprintf("could not resolve %s for notebooks (%v); notebooks will work offline only if the module cache already holds every dependency: run setup again with access to the Go module proxy", version, firstLine(err.Error()))
 	}
 	say("[3/5] %s (%s)", did, since(t0))
 
@@ -162,8 +164,15 @@ func Setup(ctx context.Context, o SetupOptions) (*Installed, error) {
 func warmModules(ctx context.Context, goCmd, proxy, version string, force bool) (string, error) {
 	marker := filepath.Join(proxy, ".warmed-"+version)
 	if !force {
-		if _, err := os.Stat(marker); err == nil {
-			return fmt.Sprintf("skipped resolving %s for notebooks: done before", version), nil
+		// Done before, and the module cache still holds the result (a
+		// `go clean -modcache` since would have removed it).
+		_, errMarker := os.Stat(marker)
+		modcache, errCache := output(ctx, "", nil, goCmd, "env", "GOMODCACHE")
+		if errMarker == nil && errCache == nil {
+			zip := filepath.Join(strings.TrimSpace(string(modcache)), "cache", "download", filepath.FromSlash(ModulePath), "@v", version+".zip")
+			if _, err := os.Stat(zip); err == nil {
+				return fmt.Sprintf("skipped resolving %s for notebooks: done before", version), nil
+			}
 		}
 	}
 	dir, err := os.MkdirTemp("", "counterpart-warm-")
@@ -179,7 +188,10 @@ func warmModules(ctx context.Context, goCmd, proxy, version string, force bool) 
 	if i := strings.IndexAny(goLine, " -"); i > 0 {
 		goLine = goLine[:i]
 	}
-	mod := "module counterpart.scratch\n\ngo " + goLine + "\n"
+	mod := "module counterpart.scratch\n"
+	if goLine != "" && goLine[0] >= '0' && goLine[0] <= '9' {
+		mod += "\ngo " + goLine + "\n" // a development toolchain ("devel …") gets no go line
+	}
 	main := "package main\n\nimport (\n"
 	for _, p := range []string{"causal", "causal/scenario", "widgets", "kernel"} {
 		main += "\t_ \"" + ModulePath + "/" + p + "\"\n"
@@ -195,9 +207,17 @@ func warmModules(ctx context.Context, goCmd, proxy, version string, force bool) 
 	if err != nil {
 		return "", err
 	}
+	// Add to the user's own settings rather than replace them (private
+	// module patterns, flags).
+	join := func(name, sep, v string) string {
+		if old := os.Getenv(name); old != "" {
+			return name + "=" + old + sep + v
+		}
+		return name + "=" + v
+	}
 	env := append(os.Environ(),
 		"GOPROXY=file://"+filepath.ToSlash(proxy)+","+strings.TrimSpace(string(upstream)),
-		"GONOSUMDB="+ModulePath, "GOFLAGS=-mod=mod", "GOTOOLCHAIN=local", "GOWORK=off")
+		join("GONOSUMDB", ",", ModulePath), join("GOFLAGS", " ", "-mod=mod"), "GOTOOLCHAIN=local", "GOWORK=off")
 	hint := "resolving the module graph for notebooks needs the Go module proxy once (run setup again with network access)"
 	if _, err := output(ctx, dir, env, goCmd, "get", ModulePath+"@"+version); err != nil {
 		return "", fmt.Errorf("%s: %v", hint, err)
@@ -606,10 +626,11 @@ func kernelSpec(inst *Installed, displayName, proxy, gomodcache, goBin string) K
 			// The kernel's scratch module has no go.sum, so Go would ask the
 			// checksum database about every dependency; offline that fails unless
 			// an earlier `go get` happened to cache the answers (a fresh machine
-			// has none: building the repository checks its go.sum instead). The
-			// modules it can reach were verified against the repository's go.sum
-			// when they were downloaded, and no network source is listed above, so
-			// the lookup adds nothing: turn it off.
+			// has none: building the repository checks its go.sum instead). No
+			// network source is listed above: the kernel trusts the local module
+			// cache as it is (whatever checks applied when its entries were
+			// downloaded — for this repository's modules, its go.sum), so the
+			// lookup is turned off.
 			"GOSUMDB":     "off",
 			"GOFLAGS":     "-mod=mod",
 			"GOTOOLCHAIN": "local",
