@@ -3,6 +3,7 @@ package causal
 import (
 	"bytes"
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"os/exec"
@@ -295,7 +296,7 @@ func TestReferenceScriptReproduces(t *testing.T) {
 	if out, err := cmd.CombinedOutput(); err != nil {
 		t.Fatalf("Rscript failed: %v\n%s", err, out)
 	}
-	for _, f := range []string{"nsw_reference.json", "nsw_schooling.csv", "separation.csv"} {
+	for _, f := range []string{"nsw_schooling.csv", "separation.csv"} {
 		got, err := os.ReadFile(filepath.Join(dir, f))
 		if err != nil {
 			t.Fatal(err)
@@ -305,4 +306,56 @@ func TestReferenceScriptReproduces(t *testing.T) {
 			t.Errorf("%s: R now writes something else than the committed file; rerun the script and review the change", f)
 		}
 	}
+	// The values: every number within 1e-10 relative, every string equal
+	// (except the R version line, so that a patch release of R does not
+	// fail the suite while its numbers agree).
+	var got, want any
+	for _, x := range []struct {
+		path string
+		v    *any
+	}{{filepath.Join(dir, "nsw_reference.json"), &got}, {"../testdata/reference/nsw_reference.json", &want}} {
+		b, err := os.ReadFile(x.path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := json.Unmarshal(b, x.v); err != nil {
+			t.Fatal(err)
+		}
+	}
+	var walk func(path string, g, w any)
+	walk = func(path string, g, w any) {
+		switch wv := w.(type) {
+		case map[string]any:
+			gv, ok := g.(map[string]any)
+			if !ok || len(gv) != len(wv) {
+				t.Errorf("%s: structure differs", path)
+				return
+			}
+			for k, v := range wv {
+				if path == ".meta" && k == "r_version" {
+					continue
+				}
+				walk(path+"."+k, gv[k], v)
+			}
+		case []any:
+			gv, ok := g.([]any)
+			if !ok || len(gv) != len(wv) {
+				t.Errorf("%s: length differs", path)
+				return
+			}
+			for i := range wv {
+				walk(fmt.Sprintf("%s[%d]", path, i), gv[i], wv[i])
+			}
+		case float64:
+			gv, ok := g.(float64)
+			if !ok || math.Abs(gv-wv) > 1e-10*math.Max(math.Abs(wv), 1e-300) {
+				t.Errorf("%s: R now prints %v, committed %v", path, g, wv)
+			}
+		default:
+			if g != w {
+				t.Errorf("%s: R now prints %v, committed %v", path, g, w)
+			}
+		}
+	}
+	walk("", got, want)
 }
