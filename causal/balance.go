@@ -193,9 +193,6 @@ func (b *BalanceSheet) String() string {
 	if err := b.Err(); err != nil {
 		return "balancesheet: " + err.Error()
 	}
-	if b.err != nil {
-		return "balance: " + b.err.Error()
-	}
 	var s strings.Builder
 	title := "Covariate balance (|SMD| > 0.1 flagged, Austin 2009; variance ratio outside [0.5, 2] flagged, Rubin 2001)"
 	fmt.Fprintln(&s, title)

@@ -11,34 +11,9 @@ import (
 )
 
 // benchFrame builds n rows of p standard-normal covariates x1..xp and a
-// treatment drawn from a logistic model in them.
-func benchFrame(n, p int, seed uint64) (*Frame, []string) {
-	r := rand.New(rand.NewPCG(seed, 1))
-	num := map[string][]float64{}
-	names := make([]string, p)
-	for j := range names {
-		names[j] = fmt.Sprintf("x%d", j+1)
-		num[names[j]] = make([]float64, n)
-	}
-	t := make([]float64, n)
-	for i := 0; i < n; i++ {
-		var eta float64
-		for j, name := range names {
-			v := r.NormFloat64()
-			num[name][i] = v
-			eta += 0.3 * v / float64(j+1)
-		}
-		if r.Float64() < sigmoid(eta) {
-			t[i] = 1
-		}
-	}
-	num["t"] = t
-	f, err := NewFrame(append(append([]string(nil), names...), "t"), num, nil)
-	if err != nil {
-		panic(err)
-	}
-	return f, names
-}
+// treatment drawn from a logistic model in them (effectFrame's data; its
+// outcome column is not used here).
+func benchFrame(n, p int, seed uint64) (*Frame, []string) { return effectFrame(n, p, seed) }
 
 var benchSink any
 

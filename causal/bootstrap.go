@@ -417,9 +417,6 @@ func (b *Bootstrap) String() string {
 	if err := b.Err(); err != nil {
 		return "bootstrap: " + err.Error()
 	}
-	if b.err != nil {
-		return "bootstrap: " + b.err.Error()
-	}
 	var s strings.Builder
 	fmt.Fprintf(&s, "Bootstrap of %s %s: %d of %d replicates (seed %d)\n", b.Estimator, b.Estimand, len(b.Replicates), b.Requested, b.Seed)
 	fmt.Fprintf(&s, "  estimate %s; bootstrap SE %s; bias %s\n", fmtG(b.Estimate), fmtG(b.SE), fmtG(b.Bias))
@@ -448,9 +445,6 @@ func (b *Bootstrap) refits() string {
 func (b *Bootstrap) MarshalJSON() ([]byte, error) {
 	if err := b.Err(); err != nil {
 		return json.Marshal(errJSON{err.Error()})
-	}
-	if b.err != nil {
-		return json.Marshal(errJSON{b.err.Error()})
 	}
 	type bin struct {
 		Lo    float64 `json:"lo"`

@@ -457,9 +457,6 @@ func (c *Cells) String() string {
 	if err := c.Err(); err != nil {
 		return "cells: " + err.Error()
 	}
-	if c.err != nil {
-		return "cells: " + c.err.Error()
-	}
 	var b strings.Builder
 	fmt.Fprintf(&b, "Positivity cells for %s (%d bins for continuous covariates; thin arm < %d units)\n", strings.Join(c.Columns, " × "), c.Options.Bins, c.Options.Thin)
 	fmt.Fprintf(&b, "  %d cells with units; %d violating (an arm empty), %d thin; %d units (%.1f%%) in violating cells\n",

@@ -997,9 +997,6 @@ func (es *Estimates) MarshalJSON() ([]byte, error) {
 	if err := es.Err(); err != nil {
 		return json.Marshal(errJSON{err.Error()})
 	}
-	if es.err != nil {
-		return json.Marshal(errJSON{es.err.Error()})
-	}
 	out := make([]effectJSON, 0, len(es.Items))
 	for _, e := range es.Items {
 		out = append(out, e.toJSON())
@@ -1020,9 +1017,6 @@ func (es *Estimates) firstItemFlags() []Flag {
 func (es *Estimates) String() string {
 	if err := es.Err(); err != nil {
 		return "estimates: " + err.Error()
-	}
-	if es.err != nil {
-		return "estimates: " + es.err.Error()
 	}
 	var b strings.Builder
 	fmt.Fprintf(&b, "Estimates of the %s (%s)\n", es.Estimand, es.Estimand.population())

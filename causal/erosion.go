@@ -149,9 +149,6 @@ func (e *Erosion) String() string {
 	if err := e.Err(); err != nil {
 		return "erosion: " + err.Error()
 	}
-	if e.err != nil {
-		return "erosion: " + e.err.Error()
-	}
 	var b strings.Builder
 	order := "as given"
 	if e.Greedy {

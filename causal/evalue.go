@@ -133,9 +133,6 @@ func (e *EValue) String() string {
 	if err := e.Err(); err != nil {
 		return "evalue: " + err.Error()
 	}
-	if e.err != nil {
-		return "e-value: " + e.err.Error()
-	}
 	var b strings.Builder
 	approx := ""
 	if e.Approximate {
@@ -158,9 +155,6 @@ func (e *EValue) String() string {
 func (e *EValue) MarshalJSON() ([]byte, error) {
 	if err := e.Err(); err != nil {
 		return json.Marshal(errJSON{err.Error()})
-	}
-	if e.err != nil {
-		return json.Marshal(errJSON{e.err.Error()})
 	}
 	var ci *[2]Num
 	if !math.IsNaN(e.CI.Lo) {

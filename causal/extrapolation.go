@@ -246,9 +246,6 @@ func (a *ExtrapolationAudit) String() string {
 	if err := a.Err(); err != nil {
 		return "extrapolationaudit: " + err.Error()
 	}
-	if a.err != nil {
-		return "extrapolation audit: " + a.err.Error()
-	}
 	var b strings.Builder
 	fmt.Fprintf(&b, "Extrapolation audit of regression adjustment (%s)\n", a.Estimand)
 	for _, m := range a.Models {
@@ -279,9 +276,6 @@ func (a *ExtrapolationAudit) String() string {
 func (a *ExtrapolationAudit) MarshalJSON() ([]byte, error) {
 	if err := a.Err(); err != nil {
 		return json.Marshal(errJSON{err.Error()})
-	}
-	if a.err != nil {
-		return json.Marshal(errJSON{a.err.Error()})
 	}
 	type model struct {
 		Model        string      `json:"model"`
@@ -519,9 +513,6 @@ func (c *ExtrapolationCurve) String() string {
 	if err := c.Err(); err != nil {
 		return "extrapolationcurve: " + err.Error()
 	}
-	if c.err != nil {
-		return "extrapolation curve: " + c.err.Error()
-	}
 	var b strings.Builder
 	fmt.Fprintf(&b, "f1 and f0 along %s (%d grid points from %s to %s; other terms held at mean / reference level)\n",
 		c.Covariate, len(c.X), fmtG(c.X[0]), fmtG(c.X[len(c.X)-1]))
@@ -547,9 +538,6 @@ func (c *ExtrapolationCurve) String() string {
 func (c *ExtrapolationCurve) MarshalJSON() ([]byte, error) {
 	if err := c.Err(); err != nil {
 		return json.Marshal(errJSON{err.Error()})
-	}
-	if c.err != nil {
-		return json.Marshal(errJSON{c.err.Error()})
 	}
 	return json.Marshal(struct {
 		Covariate    string       `json:"covariate"`

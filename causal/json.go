@@ -24,9 +24,6 @@ func (sc *Scores) MarshalJSON() ([]byte, error) {
 	if err := sc.Err(); err != nil {
 		return json.Marshal(errJSON{err.Error()})
 	}
-	if sc.err != nil {
-		return json.Marshal(errJSON{sc.err.Error()})
-	}
 	type termJ struct {
 		Term      string `json:"term"`
 		Coef      Num    `json:"coef"`
@@ -74,9 +71,6 @@ func (sc *Scores) MarshalJSON() ([]byte, error) {
 func (s *Support) MarshalJSON() ([]byte, error) {
 	if err := s.Err(); err != nil {
 		return json.Marshal(errJSON{err.Error()})
-	}
-	if s.err != nil {
-		return json.Marshal(errJSON{s.err.Error()})
 	}
 	type ext struct {
 		Threshold    float64 `json:"threshold"`
@@ -134,9 +128,6 @@ func (c *Cells) MarshalJSON() ([]byte, error) {
 	if err := c.Err(); err != nil {
 		return json.Marshal(errJSON{err.Error()})
 	}
-	if c.err != nil {
-		return json.Marshal(errJSON{c.err.Error()})
-	}
 	return json.Marshal(struct {
 		Columns          []string `json:"columns"`
 		Bins             int      `json:"bins"`
@@ -158,9 +149,6 @@ func (e *Erosion) MarshalJSON() ([]byte, error) {
 	if err := e.Err(); err != nil {
 		return json.Marshal(errJSON{err.Error()})
 	}
-	if e.err != nil {
-		return json.Marshal(errJSON{e.err.Error()})
-	}
 	return json.Marshal(struct {
 		Order  []string      `json:"order"`
 		Greedy bool          `json:"greedy"`
@@ -174,9 +162,6 @@ func (e *Erosion) MarshalJSON() ([]byte, error) {
 func (b *BalanceSheet) MarshalJSON() ([]byte, error) {
 	if err := b.Err(); err != nil {
 		return json.Marshal(errJSON{err.Error()})
-	}
-	if b.err != nil {
-		return json.Marshal(errJSON{b.err.Error()})
 	}
 	return json.Marshal(b.Rows)
 }

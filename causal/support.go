@@ -88,28 +88,7 @@ func (sc *Scores) SupportBins(bins int) *Support {
 		return &Support{err: fmt.Errorf("histogram bins must be between 1 and 200, got %d", bins)}
 	}
 	d := sc.Design
-	s := &Support{Scores: sc, Treated: d.Treated, Control: d.Control}
-	s.TreatedRange = Interval{math.Inf(1), math.Inf(-1)}
-	s.ControlRange = s.TreatedRange
-	for i, e := range sc.E {
-		r := &s.ControlRange
-		if d.T[i] == 1 {
-			r = &s.TreatedRange
-		}
-		r.Lo, r.Hi = math.Min(r.Lo, e), math.Max(r.Hi, e)
-	}
-	s.Band = Interval{math.Max(s.TreatedRange.Lo, s.ControlRange.Lo), math.Min(s.TreatedRange.Hi, s.ControlRange.Hi)}
-	s.Outside = make([]bool, d.N)
-	for i, e := range sc.E {
-		if e < s.Band.Lo || e > s.Band.Hi || s.Band.Lo > s.Band.Hi {
-			s.Outside[i] = true
-			if d.T[i] == 1 {
-				s.OutsideTreated++
-			} else {
-				s.OutsideControl++
-			}
-		}
-	}
+	s := sc.supportBand()
 	for _, t := range []float64{0.05, 0.1} {
 		x := ExtremeShares{Threshold: t}
 		for i, e := range sc.E {
@@ -199,9 +178,6 @@ func smdValue(m1, m0, v1, v0 float64) float64 {
 func (s *Support) String() string {
 	if err := s.Err(); err != nil {
 		return "support: " + err.Error()
-	}
-	if s.err != nil {
-		return "support: " + s.err.Error()
 	}
 	var b strings.Builder
 	fmt.Fprintf(&b, "Support by arm (propensity scores)\n")

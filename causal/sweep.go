@@ -122,9 +122,6 @@ func (s *Sweep) String() string {
 	if err := s.Err(); err != nil {
 		return "sweep: " + err.Error()
 	}
-	if s.err != nil {
-		return "sweep: " + s.err.Error()
-	}
 	var b strings.Builder
 	fmt.Fprintf(&b, "Trimming sweep: %s %s at scores in [α, 1 − α] (each α a different population; optimal α of Crump et al. 2009: %.3f)\n", s.Estimator, s.Estimand, s.Optimal)
 	fmt.Fprintf(&b, "  %5s %8s %8s %12s %10s %25s %9s\n", "α", "treated", "control", "estimate", "SE", "95% CI", "max|SMD|")
@@ -147,9 +144,6 @@ func (s *Sweep) String() string {
 func (s *Sweep) MarshalJSON() ([]byte, error) {
 	if err := s.Err(); err != nil {
 		return json.Marshal(errJSON{err.Error()})
-	}
-	if s.err != nil {
-		return json.Marshal(errJSON{s.err.Error()})
 	}
 	type row struct {
 		Alpha          float64  `json:"alpha"`

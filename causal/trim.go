@@ -362,9 +362,6 @@ func (t *Trimmed) String() string {
 	if err := t.Err(); err != nil {
 		return "trimmed: " + err.Error()
 	}
-	if t.err != nil {
-		return "trimming: " + t.err.Error()
-	}
 	var b strings.Builder
 	fmt.Fprintf(&b, "Trimming: %s\n", t.Rule)
 	if !math.IsNaN(t.Alpha) && t.Rule.kind == "crump" {
@@ -389,9 +386,6 @@ func (t *Trimmed) String() string {
 func (t *Trimmed) MarshalJSON() ([]byte, error) {
 	if err := t.Err(); err != nil {
 		return json.Marshal(errJSON{err.Error()})
-	}
-	if t.err != nil {
-		return json.Marshal(errJSON{t.err.Error()})
 	}
 	type arm struct {
 		Treated int `json:"treated"`

@@ -661,9 +661,6 @@ func (v *Verdict) String() string {
 	if err := v.Err(); err != nil {
 		return "verdict: " + err.Error()
 	}
-	if v.err != nil {
-		return "verdict: " + v.err.Error()
-	}
 	var b strings.Builder
 	fmt.Fprintf(&b, "Positivity verdict: %s\n", strings.ToUpper(v.Status))
 	for _, r := range v.Reasons {
@@ -694,9 +691,6 @@ func (v *Verdict) String() string {
 func (sc *Scores) String() string {
 	if err := sc.Err(); err != nil {
 		return "scores: " + err.Error()
-	}
-	if sc.err != nil {
-		return "propensity: " + sc.err.Error()
 	}
 	var b strings.Builder
 	d := sc.Design

@@ -356,9 +356,6 @@ func (w *Weights) String() string {
 	if err := w.Err(); err != nil {
 		return "weights: " + err.Error()
 	}
-	if w.err != nil {
-		return "weights: " + w.err.Error()
-	}
 	var b strings.Builder
 	fmt.Fprintf(&b, "%s, n = %d\n", w.Label, w.Treated+w.Control)
 	fmt.Fprintf(&b, "  %-8s %7s %12s %12s %12s\n", "arm", "n", "sum of w", "largest w", "ESS (Kish)")
@@ -379,9 +376,6 @@ func (w *Weights) String() string {
 func (w *Weights) MarshalJSON() ([]byte, error) {
 	if err := w.Err(); err != nil {
 		return json.Marshal(errJSON{err.Error()})
-	}
-	if w.err != nil {
-		return json.Marshal(errJSON{w.err.Error()})
 	}
 	type arm struct {
 		N   int `json:"n"`

@@ -76,9 +76,5 @@ chart.setOption({tooltip: {formatter: function (p) {
 	if err != nil {
 		return Chart{}, err
 	}
-	png, err := staticCalibration(c, fallbackHeight(height))
-	if err != nil {
-		return Chart{}, err
-	}
-	return Chart{Title: title, Option: option, Fallback: png, Width: chartWidthPixels, Height: height, Script: script}, nil
+	return assemble(title, option, script, height, func(ph int) ([]byte, error) { return staticCalibration(c, ph) })
 }

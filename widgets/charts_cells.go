@@ -174,9 +174,5 @@ chart.setOption({tooltip: {formatter: function (p) {
 	if err != nil {
 		return Chart{}, err
 	}
-	png, err := staticHeatmap(h, fallbackHeight(height))
-	if err != nil {
-		return Chart{}, err
-	}
-	return Chart{Title: title, Option: option, Fallback: png, Width: chartWidthPixels, Height: height, Script: script}, nil
+	return assemble(title, option, script, height, func(ph int) ([]byte, error) { return staticHeatmap(h, ph) })
 }

@@ -214,3 +214,13 @@ function num(v, digits) {
 function count(v) { return Math.abs(v).toLocaleString("en-US"); }
 function pct(v) { return (v === null || v === undefined) ? "\u2014" : (100 * v).toFixed(1) + "%"; }
 `
+
+// assemble is the common end of a chart builder: the static picture, drawn
+// by draw at the fallback height for the chart's height, and the Chart.
+func assemble(title string, option []byte, script string, height int, draw func(h int) ([]byte, error)) (Chart, error) {
+	png, err := draw(fallbackHeight(height))
+	if err != nil {
+		return Chart{}, err
+	}
+	return Chart{Title: title, Option: option, Fallback: png, Width: chartWidthPixels, Height: height, Script: script}, nil
+}

@@ -181,11 +181,7 @@ chart.setOption({tooltip: {formatter: function (p) {
 	if err != nil {
 		return Chart{}, err
 	}
-	png, err := staticForest(d, fallbackHeight(height))
-	if err != nil {
-		return Chart{}, err
-	}
-	return Chart{Title: title, Option: option, Fallback: png, Width: chartWidthPixels, Height: height, Script: script}, nil
+	return assemble(title, option, script, height, func(ph int) ([]byte, error) { return staticForest(d, ph) })
 }
 
 // bootData is the histogram of bootstrap replicates.
@@ -284,11 +280,7 @@ chart.setOption({tooltip: {formatter: function (ps) {
 	if err != nil {
 		return Chart{}, err
 	}
-	png, err := staticBootstrap(d, fallbackHeight(height))
-	if err != nil {
-		return Chart{}, err
-	}
-	return Chart{Title: title, Option: option, Fallback: png, Width: chartWidthPixels, Height: height, Script: script}, nil
+	return assemble(title, option, script, height, func(ph int) ([]byte, error) { return staticBootstrap(d, ph) })
 }
 
 // TrimmedHistogram is the mirrored score histogram of the original units

@@ -98,9 +98,5 @@ chart.setOption({tooltip: {formatter: function (ps) {
 	if err != nil {
 		return Chart{}, err
 	}
-	png, err := staticErosion(d, fallbackHeight(height))
-	if err != nil {
-		return Chart{}, err
-	}
-	return Chart{Title: title, Option: option, Fallback: png, Width: chartWidthPixels, Height: height, Script: script}, nil
+	return assemble(title, option, script, height, func(ph int) ([]byte, error) { return staticErosion(d, ph) })
 }

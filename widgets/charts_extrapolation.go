@@ -193,9 +193,5 @@ chart.setOption({tooltip: {formatter: function (p) {
 	if err != nil {
 		return Chart{}, err
 	}
-	png, err := staticExtrapolation(d, fallbackHeight(height))
-	if err != nil {
-		return Chart{}, err
-	}
-	return Chart{Title: title, Option: option, Fallback: png, Width: chartWidthPixels, Height: height, Script: script}, nil
+	return assemble(title, option, script, height, func(ph int) ([]byte, error) { return staticExtrapolation(d, ph) })
 }

@@ -147,11 +147,7 @@ chart.setOption({
 	if err != nil {
 		return Chart{}, err
 	}
-	png, err := staticMirrored(h, fallbackHeight(height))
-	if err != nil {
-		return Chart{}, err
-	}
-	return Chart{Title: title, Option: option, Fallback: png, Width: chartWidthPixels, Height: height, Script: script}, nil
+	return assemble(title, option, script, height, func(ph int) ([]byte, error) { return staticMirrored(h, ph) })
 }
 
 // densityData is a kernel density estimate per arm on a common grid.
@@ -333,9 +329,5 @@ chart.setOption({tooltip: {formatter: function (ps) {
 	if err != nil {
 		return Chart{}, err
 	}
-	png, err := staticDensity(d, fallbackHeight(height))
-	if err != nil {
-		return Chart{}, err
-	}
-	return Chart{Title: title, Option: option, Fallback: png, Width: chartWidthPixels, Height: height, Script: script}, nil
+	return assemble(title, option, script, height, func(ph int) ([]byte, error) { return staticDensity(d, ph) })
 }
