@@ -422,14 +422,7 @@ func parseBytes(data []byte, progress func(done, total int)) (*Frame, error) {
 		}
 		offset += r.rows
 	}
-	if offset == 0 {
-		return nil, errors.New("the file has a header but no data rows")
-	}
-	f := &Frame{names: names, cols: make(map[string]*Column, p), rows: offset}
-	for j, name := range names {
-		f.cols[name] = assembleColumn(name, j, parts, offset)
-	}
-	return f, nil
+	return frameOf(names, parts, offset)
 }
 
 func checkHeader(header []string) ([]string, error) {
@@ -578,10 +571,15 @@ func parseCSV(r io.Reader, offset func(int)) (*Frame, error) {
 	for _, b := range parts {
 		n += b.n
 	}
+	return frameOf(names, parts, n)
+}
+
+// frameOf assembles the parsed batches (in row order) of n rows into a Frame.
+func frameOf(names []string, parts []csvBatchOut, n int) (*Frame, error) {
 	if n == 0 {
 		return nil, errors.New("the file has a header but no data rows")
 	}
-	f := &Frame{names: names, cols: make(map[string]*Column, p), rows: n}
+	f := &Frame{names: names, cols: make(map[string]*Column, len(names)), rows: n}
 	for j, name := range names {
 		f.cols[name] = assembleColumn(name, j, parts, n)
 	}

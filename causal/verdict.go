@@ -261,19 +261,13 @@ func (sc *Scores) positivity(o VerdictOptions, cells []*Cells) *positivity {
 			}
 			if share := float64(tThin) / float64(d.Treated); share > o.MaxShareOutside {
 				mark(pf.treatedAlone, 1, func(r Cell) bool { return !r.Structural && r.Control < c.Options.Thin })
-				pf.treatedOnly, pf.limited = true, true
-				msg := fmt.Sprintf("positivity cells (%s): %d treated units (%.1f%% of the treated) are in cells with fewer than %d controls: their comparisons rest on a handful of controls (threshold %.0f%% of the arm)",
-					cols, tThin, 100*share, c.Options.Thin, 100*o.MaxShareOutside)
-				pf.treatedWhy = append(pf.treatedWhy, msg)
-				pf.reasons = append(pf.reasons, msg)
+				pf.withdraw(true, fmt.Sprintf("positivity cells (%s): %d treated units (%.1f%% of the treated) are in cells with fewer than %d controls: their comparisons rest on a handful of controls (threshold %.0f%% of the arm)",
+					cols, tThin, 100*share, c.Options.Thin, 100*o.MaxShareOutside))
 			}
 			if share := float64(cThin) / float64(d.Control); share > o.MaxShareOutside {
 				mark(pf.controlsAlone, 0, func(r Cell) bool { return !r.Structural && r.Treated < c.Options.Thin })
-				pf.controlOnly, pf.limited = true, true
-				msg := fmt.Sprintf("positivity cells (%s): %d controls (%.1f%% of the controls) are in cells with fewer than %d treated units: their comparisons rest on a handful of treated units (threshold %.0f%% of the arm)",
-					cols, cThin, 100*share, c.Options.Thin, 100*o.MaxShareOutside)
-				pf.controlWhy = append(pf.controlWhy, msg)
-				pf.reasons = append(pf.reasons, msg)
+				pf.withdraw(false, fmt.Sprintf("positivity cells (%s): %d controls (%.1f%% of the controls) are in cells with fewer than %d treated units: their comparisons rest on a handful of treated units (threshold %.0f%% of the arm)",
+					cols, cThin, 100*share, c.Options.Thin, 100*o.MaxShareOutside))
 			}
 		}
 		// Thin cells and small cells lacking an arm by what may be chance:
@@ -350,11 +344,8 @@ func (sc *Scores) positivity(o VerdictOptions, cells []*Cells) *positivity {
 				pf.treatedAlone[i] = true
 			}
 		}
-		pf.treatedOnly, pf.limited = true, true
-		msg := fmt.Sprintf("%.1f%% of the treated units (%d) have scores above %.2f: few comparable controls, each carrying an ATT weight above %.0f (threshold %.0f%% of the arm)",
-			100*share, tHigh, 1-o.Extreme, (1-o.Extreme)/o.Extreme, 100*o.MaxShareExtreme)
-		pf.treatedWhy = append(pf.treatedWhy, msg)
-		pf.reasons = append(pf.reasons, msg)
+		pf.withdraw(true, fmt.Sprintf("%.1f%% of the treated units (%d) have scores above %.2f: few comparable controls, each carrying an ATT weight above %.0f (threshold %.0f%% of the arm)",
+			100*share, tHigh, 1-o.Extreme, (1-o.Extreme)/o.Extreme, 100*o.MaxShareExtreme))
 	}
 	if share := float64(cLow) / float64(d.Control); share > o.MaxShareExtreme && !pf.noOverlap {
 		for i, e := range sc.E {
@@ -362,17 +353,28 @@ func (sc *Scores) positivity(o VerdictOptions, cells []*Cells) *positivity {
 				pf.controlsAlone[i] = true
 			}
 		}
-		pf.controlOnly, pf.limited = true, true
-		msg := fmt.Sprintf("%.1f%% of the controls (%d) have scores below %.2f: few comparable treated units, each carrying an ATC weight above %.0f (threshold %.0f%% of the arm)",
-			100*share, cLow, o.Extreme, (1-o.Extreme)/o.Extreme, 100*o.MaxShareExtreme)
-		pf.controlWhy = append(pf.controlWhy, msg)
-		pf.reasons = append(pf.reasons, msg)
+		pf.withdraw(false, fmt.Sprintf("%.1f%% of the controls (%d) have scores below %.2f: few comparable treated units, each carrying an ATC weight above %.0f (threshold %.0f%% of the arm)",
+			100*share, cLow, o.Extreme, (1-o.Extreme)/o.Extreme, 100*o.MaxShareExtreme))
 	}
 	if share := float64(ext) / float64(d.N); share > o.MaxShareExtreme {
 		pf.limited = true
 		pf.reasons = append(pf.reasons, fmt.Sprintf("%.1f%% of units have scores below %.2f or above %.2f (threshold %.0f%%)", 100*share, o.Extreme, 1-o.Extreme, 100*o.MaxShareExtreme))
 	}
 	return pf
+}
+
+// withdraw records a limitation that withdraws the estimand targeting the
+// treated arm (ATT) or the control arm (ATC), with its reason.
+func (pf *positivity) withdraw(treatedArm bool, msg string) {
+	pf.limited = true
+	if treatedArm {
+		pf.treatedOnly = true
+		pf.treatedWhy = append(pf.treatedWhy, msg)
+	} else {
+		pf.controlOnly = true
+		pf.controlWhy = append(pf.controlWhy, msg)
+	}
+	pf.reasons = append(pf.reasons, msg)
 }
 
 // supports reports whether the findings leave the estimand supported, and
