@@ -8,6 +8,8 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"regexp"
+	"strings"
 	"testing"
 )
 
@@ -279,7 +281,8 @@ func TestSeparationFlagged(t *testing.T) {
 }
 
 // The committed reference values must be what the committed R script prints:
-// rerun it (Debian's r-base-core) into a temporary folder and compare bytes.
+// rerun it (Debian's r-base-core) into a temporary folder and compare the
+// data files by bytes and the values by referenceAgrees.
 // Required in CI (CI=true or COUNTERPART_E2E=1); skipped elsewhere without R.
 func TestReferenceScriptReproduces(t *testing.T) {
 	rscript, err := exec.LookPath("Rscript")
@@ -348,7 +351,7 @@ func TestReferenceScriptReproduces(t *testing.T) {
 			}
 		case float64:
 			gv, ok := g.(float64)
-			if !ok || math.Abs(gv-wv) > 1e-10*math.Max(math.Abs(wv), 1e-300) {
+			if !ok || !referenceAgrees(path, gv, wv) {
 				t.Errorf("%s: R now prints %v, committed %v", path, g, wv)
 			}
 		default:
@@ -358,4 +361,62 @@ func TestReferenceScriptReproduces(t *testing.T) {
 		}
 	}
 	walk("", got, want)
+}
+
+// divergentPath matches the quantities of the separated fits that have no
+// finite value: the coefficient and SE of the separated term (gate, the third
+// term) and the distance of the fitted values from 1. Their digits depend on
+// the BLAS and the stopping rule, so only their scale is a reference.
+var divergentPath = regexp.MustCompile(`^\.separation\.(default|tight)_control\.((coef|se)\[2\]|one_minus_min_fitted_gate_1)$`)
+
+// referenceAgrees says whether a value R prints now agrees with the committed
+// one, with a tolerance that fits the quantity: 1e-10 relative to the larger
+// of |committed| and the quantity's natural scale. SMDs are on the scale of a
+// standard deviation (1), so an SMD that is zero by design (the overlap
+// weights balance means exactly) may print as ±1e-13 under one BLAS and
+// another ±1e-13 under the next; every other quantity is compared relatively
+// with a floor of 1e-12. Divergent quantities (divergentPath) must keep their
+// order of magnitude (within a factor of 10) and their sign.
+func referenceAgrees(path string, got, want float64) bool {
+	if math.IsNaN(got) || math.IsNaN(want) {
+		return false
+	}
+	if divergentPath.MatchString(path) {
+		if want == 0 || got == 0 || math.Signbit(got) != math.Signbit(want) {
+			return got == want
+		}
+		r := math.Abs(got / want)
+		return r > 0.1 && r < 10
+	}
+	scale := 1e-12
+	if strings.Contains(path, "smd") {
+		scale = 1
+	}
+	return math.Abs(got-want) <= 1e-10*math.Max(math.Abs(want), scale)
+}
+
+// The tolerance rule itself: last-digit noise of values that are zero by
+// design and the digits of divergent fits pass; a real change does not.
+func TestReferenceAgrees(t *testing.T) {
+	for _, c := range []struct {
+		path      string
+		got, want float64
+		ok        bool
+	}{
+		{".balance_weighted_ato.re74.smd", -1.263862660320524e-13, -1.2611990930701122e-13, true},
+		{".balance_weighted_ato.re74.smd", 3e-13, -3e-13, true},
+		{".balance_weighted_ato.re74.smd", 1e-9, 0, false},
+		{".balance.age.smd", 0.1070, 0.1071, false},
+		{".glm.coef[1]", 0.06512555471997584, 0.06512555471997587, true},
+		{".glm.coef[1]", 0.0651, 0.0652, false},
+		{".separation.tight_control.coef[2]", 29.522762034328164, 29.52276201269319, true},
+		{".separation.tight_control.se[2]", 158465.29374769866, 158465.2920332068, true},
+		{".separation.tight_control.coef[2]", 400, 29.5, false},
+		{".separation.tight_control.coef[2]", -29.5, 29.5, false},
+		{".separation.tight_control.coef[1]", 0.3172, 0.3171, false},
+	} {
+		if got := referenceAgrees(c.path, c.got, c.want); got != c.ok {
+			t.Errorf("referenceAgrees(%s, %v, %v) = %v, want %v", c.path, c.got, c.want, got, c.ok)
+		}
+	}
 }
