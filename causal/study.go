@@ -297,7 +297,10 @@ func (s *Study) resolve() (*Design, error) {
 			return nil, err
 		}
 		if ycol.Kind != Numeric {
-			return nil, fmt.Errorf("outcome %q is not numeric (it has text values such as %q): choose a numeric outcome", s.outcome, ycol.Levels[0])
+			if ycol.textAt != "" {
+				return nil, fmt.Errorf("outcome %q is not numeric: %s; fix that field (write an empty field or NA for a missing value), or choose a numeric outcome", s.outcome, ycol.textAt)
+			}
+			return nil, fmt.Errorf("outcome %q is not numeric (it has text values such as %s): choose a numeric outcome", s.outcome, quoteValue(ycol.Levels[0]))
 		}
 	}
 	covs := make([]*Column, len(s.covariates))
@@ -373,11 +376,16 @@ func (s *Study) resolve() (*Design, error) {
 
 	// Terms.
 	d.Terms = []TermInfo{{Name: "(intercept)", Binary: false}}
-	type src struct {
-		col   *Column
-		level int32 // -1 for numeric
+	type numTerm struct {
+		col  *Column
+		term int
 	}
-	srcs := []src{{}}
+	type indicator struct {
+		col  *Column
+		term []int32
+	}
+	var numeric []numTerm
+	var indicators []indicator
 	for _, c := range covs {
 		if c.Kind == Numeric {
 			lo, hi := math.Inf(1), math.Inf(-1)
@@ -392,8 +400,8 @@ func (s *Study) resolve() (*Design, error) {
 			if lo == hi {
 				return nil, fmt.Errorf("covariate %q is constant (every used row is %g): it carries no information; remove it from Adjust", c.Name, lo)
 			}
+			numeric = append(numeric, numTerm{col: c, term: len(d.Terms)})
 			d.Terms = append(d.Terms, TermInfo{Name: c.Name, Column: c.Name, Binary: bin})
-			srcs = append(srcs, src{col: c, level: -1})
 			continue
 		}
 		counts := make([]int, len(c.Levels))
@@ -413,27 +421,33 @@ func (s *Study) resolve() (*Design, error) {
 		if used < 2 {
 			return nil, fmt.Errorf("covariate %q has a single level (%q) in the rows used: it carries no information; remove it from Adjust", c.Name, c.Levels[ref])
 		}
+		if err := tooManyLevels(c, used, len(rows)); err != nil {
+			return nil, err
+		}
+		term := make([]int32, len(c.Levels)) // design column of each level, 0 for none
 		for l, k := range counts {
 			if l == ref || k == 0 {
 				continue
 			}
+			term[l] = int32(len(d.Terms))
 			d.Terms = append(d.Terms, TermInfo{Name: c.Name + "=" + c.Levels[l], Column: c.Name, Level: c.Levels[l], Binary: true, RefLevel: c.Levels[ref]})
-			srcs = append(srcs, src{col: c, level: int32(l)})
 		}
+		indicators = append(indicators, indicator{col: c, term: term})
 	}
 	d.P = len(d.Terms)
 	if d.P >= d.N {
 		return nil, fmt.Errorf("the model has %d terms (intercept, covariates and category levels) but only %d rows: drop covariates or merge rare levels", d.P, d.N)
 	}
+	// One write per covariate and row: the work is linear in the levels.
 	d.X = make([]float64, d.N*d.P)
 	for k, i := range rows {
 		row := d.X[k*d.P : (k+1)*d.P]
 		row[0] = 1
-		for j := 1; j < d.P; j++ {
-			sc := srcs[j]
-			if sc.level < 0 {
-				row[j] = sc.col.Num[i]
-			} else if sc.col.Codes[i] == sc.level {
+		for _, nt := range numeric {
+			row[nt.term] = nt.col.Num[i]
+		}
+		for _, ind := range indicators {
+			if j := ind.term[ind.col.Codes[i]]; j > 0 {
 				row[j] = 1
 			}
 		}
@@ -487,8 +501,8 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 		}
 		if len(set) == 2 && treated != "" {
 			// Two numeric codes with the treated one named.
-			var tv float64
-			if _, err := fmt.Sscan(treated, &tv); err != nil || !set[tv] {
+			tv, kind := parseNumber(strings.TrimSpace(treated))
+			if kind != numOK || !set[tv] {
 				return nil, fmt.Errorf("treatment %q: treated level %q is not one of its values %s", c.Name, treated, strings.Join(levels, ", "))
 			}
 			for k, i := range rows {
@@ -547,4 +561,27 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 	default:
 		return nil, fmt.Errorf("treatment %q has the values %s: use 0/1, or name the treated value with .TreatedLevel", c.Name, strings.Join(levels, " and "))
 	}
+}
+
+// tooManyLevels refuses a categorical covariate with more than MaxLevels
+// levels, or more levels than MaxLevelShare of the rows used: one indicator
+// per level would make the model as large as the data.
+func tooManyLevels(c *Column, levels, rows int) error {
+	if levels <= MaxLevels && float64(levels) <= MaxLevelShare*float64(rows) {
+		return nil
+	}
+	msg := fmt.Sprintf("covariate %q has %d levels in the %d rows used (the limit is %d levels, and at most one level per %g rows): one indicator per level cannot be estimated; group rare levels (for example into \"other\"), use a coarser grouping, or leave it out of the covariates",
+		c.Name, levels, rows, MaxLevels, 1/MaxLevelShare)
+	if c.textAt != "" {
+		nums := 0
+		for _, l := range c.Levels {
+			if _, k := parseNumber(l); k == numOK {
+				nums++
+			}
+		}
+		if 2*nums > len(c.Levels) {
+			msg += fmt.Sprintf("; it is read as text, not numbers, because %s: if it is numeric, fix that field", c.textAt)
+		}
+	}
+	return errors.New(msg)
 }
