@@ -276,7 +276,7 @@ func parseData(data []byte, o ReadOptions, cfg readConfig) (*Frame, error) {
 		return nil, errors.New("the file is empty: expected a header row naming the columns, then data rows")
 	}
 	if err != nil {
-		return nil, fmt.Errorf("cannot read the header row: %v", csvErrText(err, 0))
+		return nil, fmt.Errorf("cannot read the header row: %v", csvErrText(err))
 	}
 	names, err := checkHeader(header, o)
 	if err != nil {
@@ -501,6 +501,9 @@ func (r *csvRead) readPiece(piece, start, end int, in chan<- csvBatchIn, stop fu
 		if err != nil {
 			var pe *csv.ParseError
 			if errors.As(err, &pe) {
+				if pe.Err == csv.ErrQuote {
+					return pieceResult{err: errors.New("a quoted field is not closed (a \" is missing or extra): check the quotes in this row"), errRow: row, line: pe.StartLine}
+				}
 				return pieceResult{err: pe.Err, errRow: row, line: pe.Line}
 			}
 			return pieceResult{err: err, errRow: row}
@@ -571,16 +574,22 @@ func guessDelimiter(s string) rune {
 	return 0
 }
 
-// csvErrText renders an encoding/csv error, shifting its line by lines.
-func csvErrText(err error, lines int) string {
+// csvErrText renders an encoding/csv error with its line.
+func csvErrText(err error) string {
 	var pe *csv.ParseError
 	if errors.As(err, &pe) {
-		return fmt.Sprintf("line %d: %v", pe.Line+lines, pe.Err)
+		return fmt.Sprintf("line %d: %v", pe.Line, pe.Err)
 	}
 	return err.Error()
 }
 
 func checkHeader(header []string, o ReadOptions) ([]string, error) {
+	if len(header) == 1 && o.Delimiter == ',' {
+		if d := guessDelimiter(header[0]); d != 0 {
+			return nil, fmt.Errorf("header: the file has a single column %s, which holds %ss: the fields seem to be separated by %ss, not commas; set the delimiter (--delimiter %s)",
+				quoteValue(header[0]), delimName(d), delimName(d), delimFlag(d))
+		}
+	}
 	names := make([]string, len(header))
 	seen := map[string]int{}
 	for i, h := range header {
@@ -599,12 +608,6 @@ func checkHeader(header []string, o ReadOptions) ([]string, error) {
 		}
 		seen[h] = i
 		names[i] = h
-	}
-	if len(names) == 1 && o.Delimiter == ',' {
-		if d := guessDelimiter(names[0]); d != 0 {
-			return nil, fmt.Errorf("header: the file has a single column %s, which holds %ss: the fields seem to be separated by %ss, not commas; set the delimiter (--delimiter %s)",
-				quoteValue(names[0]), delimName(d), delimName(d), delimFlag(d))
-		}
 	}
 	return names, nil
 }

@@ -40,7 +40,13 @@ func Load(path string) *Study { return LoadProgress(path, nil) }
 // LoadProgress is Load reporting progress (bytes parsed of the file's size)
 // to progress, which may be nil; kernel.Load shows it as a progress bar.
 func LoadProgress(path string, progress func(done, total int)) *Study {
-	f, err := ReadCSVProgress(path, progress)
+	return LoadWith(path, ReadOptions{Progress: progress})
+}
+
+// LoadWith is Load with read options: the delimiter, the field-length
+// limit, columns read as text, progress.
+func LoadWith(path string, o ReadOptions) *Study {
+	f, err := ReadCSVWith(path, o)
 	s := &Study{file: path, err: err}
 	if err == nil {
 		s.src = f
