@@ -33,6 +33,8 @@ const (
 	// MaxLevelShare is the largest ratio of a categorical covariate's levels
 	// to the rows used: above it the average level holds fewer than two rows.
 	MaxLevelShare = 0.5
+	// maxName is the longest column name accepted, in bytes.
+	maxName = 256
 )
 
 // ReadOptions adjust how a CSV file is read. The zero value reads
@@ -212,6 +214,22 @@ var binaryMagic = []struct{ prefix, what string }{
 // what it is, and decompresses gzip.
 func sniff(data []byte, depth int) ([]byte, error) {
 	has := func(prefix string) bool { return bytes.HasPrefix(data, []byte(prefix)) }
+	head := data[:min(len(data), 8192)]
+	// binary: the start is not UTF-8 text (a file that merely begins with
+	// printable magic, such as a column named BZh91AY&SY, is still text).
+	binary := func() bool {
+		text := head
+		if len(head) < len(data) {
+			// The cut may split a character: drop its first bytes.
+			for k := 0; k < 3 && len(text) > 0 && !utf8.RuneStart(text[len(text)-1]); k++ {
+				text = text[:len(text)-1]
+			}
+			if len(text) > 0 && text[len(text)-1] >= 0xc0 {
+				text = text[:len(text)-1]
+			}
+		}
+		return bytes.IndexByte(head, 0) >= 0 || !utf8.Valid(text)
+	}
 	switch {
 	case has("\x1f\x8b"):
 		if depth > 0 {
@@ -225,18 +243,17 @@ func sniff(data []byte, depth int) ([]byte, error) {
 		if err != nil {
 			return nil, fmt.Errorf("the file is gzip-compressed but damaged (%v): check the download, or decompress it yourself", err)
 		}
-		return sniff(out, depth+1)
-	case has("BZh") && len(data) >= 10 && data[3] >= '1' && data[3] <= '9' && string(data[4:10]) == "1AY&SY":
+		return sniff(bytes.TrimPrefix(out, []byte{0xEF, 0xBB, 0xBF}), depth+1)
+	case has("BZh") && len(data) >= 10 && data[3] >= '1' && data[3] <= '9' && string(data[4:10]) == "1AY&SY" && binary():
 		return nil, errors.New("the file is bzip2-compressed: decompress it (bunzip2) and load the result, or recompress it with gzip")
 	case has("PAR1") && bytes.HasSuffix(data, []byte("PAR1")):
 		return nil, errors.New("the file is a Parquet file, not CSV text: export it as CSV (for example with DuckDB: COPY (FROM 'file.parquet') TO 'file.csv')")
 	}
 	for _, m := range binaryMagic {
-		if has(m.prefix) {
+		if has(m.prefix) && (m.prefix != "%PDF-" || binary()) {
 			return nil, errors.New("the file is " + m.what)
 		}
 	}
-	head := data[:min(len(data), 8192)]
 	if i := bytes.IndexByte(head, 0); i >= 0 {
 		return nil, fmt.Errorf("the file holds a NUL byte at byte %d: it is binary data, not CSV text", i+1)
 	}
@@ -249,10 +266,9 @@ func parseData(data []byte, o ReadOptions, cfg readConfig) (*Frame, error) {
 		return nil, err
 	}
 	fileSize := len(data)
-	if data, err = sniff(data, 0); err != nil {
+	if data, err = sniff(bytes.TrimPrefix(data, []byte{0xEF, 0xBB, 0xBF}), 0); err != nil {
 		return nil, err
 	}
-	data = bytes.TrimPrefix(data, []byte{0xEF, 0xBB, 0xBF})
 	if bytes.IndexByte(data, '\n') < 0 && bytes.IndexByte(data, '\r') >= 0 {
 		// Lines end with CR alone.
 		data = bytes.ReplaceAll(data, []byte{'\r'}, []byte{'\n'})
@@ -470,9 +486,10 @@ func (r *csvRead) readPiece(piece, start, end int, in chan<- csvBatchIn, stop fu
 	cr.Comma = r.o.Delimiter
 	cr.FieldsPerRecord = -1
 	// Records are copied into one flat block of field headers per batch, so
-	// no slice is allocated per row.
+	// no slice is allocated per row; a wide file has shorter batches, so the
+	// block stays within 4 MiB whatever the number of columns.
 	cr.ReuseRecord = true
-	batchSize := r.cfg.batch
+	batchSize := max(1, min(r.cfg.batch, (1<<18)/p))
 	var flat []string
 	var batch [][]string
 	row, seq := 1, 0
@@ -597,8 +614,8 @@ func checkHeader(header []string, o ReadOptions) ([]string, error) {
 		if h == "" {
 			return nil, fmt.Errorf("header: column %d has no name: give every column a name", i+1)
 		}
-		if len(h) > o.MaxField {
-			return nil, fmt.Errorf("header: the name of column %d has %d bytes, more than the limit of %d (it starts %s): check for an unclosed quote", i+1, len(h), o.MaxField, quoteValue(h))
+		if len(h) > maxName {
+			return nil, fmt.Errorf("header: the name of column %d has %d bytes, more than the limit of %d (it starts %s): check for an unclosed quote, or shorten the name", i+1, len(h), maxName, quoteValue(h))
 		}
 		if why := badText(h); why != "" {
 			return nil, fmt.Errorf("header: the name of column %d, %s, %s: rename the column", i+1, quoteValue(h), why)
@@ -620,7 +637,7 @@ func badText(s string) string {
 		return "is not valid UTF-8 text: save the file as UTF-8 (for example iconv -f LATIN1 -t UTF-8 in.csv > out.csv)"
 	}
 	for _, r := range s {
-		if unicode.IsControl(r) || unicode.Is(unicode.Bidi_Control, r) || r == '\u2028' || r == '\u2029' {
+		if unicode.IsControl(r) || unicode.Is(unicode.Bidi_Control, r) || r == '\u2028' || r == '\u2029' || r == '\ufeff' {
 			return fmt.Sprintf("holds the control character %U", r)
 		}
 	}

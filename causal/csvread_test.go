@@ -216,7 +216,7 @@ func TestDialectsDetected(t *testing.T) {
 	_, err = parse(t, string(gz.Bytes()[:20]))
 	wantErr(t, err, "gzip-compressed but damaged")
 	for magic, want := range map[string]string{"PK\x03\x04\x14\x00": "ZIP archive", "\xff\xfex\x00,\x00": "UTF-16", "a,b\n1,\x00\n": "NUL byte at byte 7",
-		"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1": "Excel", "\xfd7zXZ\x00": "xz", "BZh91AY&SY": "bzip2", "SQLite format 3\x00": "SQLite"} {
+		"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1": "Excel", "\xfd7zXZ\x00": "xz", "BZh91AY&SY\xc1\x02\x9f\xfe\x01": "bzip2", "BZh91AY&SY,b\n": "no data rows" /* printable: text */, "SQLite format 3\x00": "SQLite"} {
 		_, err := parse(t, magic)
 		wantErr(t, err, want)
 	}

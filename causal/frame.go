@@ -116,7 +116,7 @@ func (f *Frame) Column(name string) (*Column, error) {
 }
 
 func unknownColumn(name string, names []string) error {
-	msg := fmt.Sprintf("unknown column %q", name)
+	msg := "unknown column " + quoteValue(name)
 	if s := closest(name, names); s != "" {
 		msg += fmt.Sprintf(" (did you mean %q?)", s)
 	}
@@ -134,6 +134,9 @@ func unknownColumn(name string, names []string) error {
 // closest returns the name with the smallest edit distance to s, if it is
 // close enough to be a plausible typo (case-insensitive match or distance ≤ 2).
 func closest(s string, names []string) string {
+	if len(s) > maxName {
+		return "" // no column name is that long
+	}
 	best, bestD := "", 1<<30
 	for _, n := range names {
 		if strings.EqualFold(n, s) {

@@ -280,16 +280,16 @@ func (s *Study) resolve() (*Design, error) {
 	seen := map[string]string{s.treat: "treatment"}
 	if s.outcome != "" {
 		if r, dup := seen[s.outcome]; dup {
-			return nil, fmt.Errorf("column %q is both the %s and the outcome", s.outcome, r)
+			return nil, fmt.Errorf("column %s is both the %s and the outcome", quoteValue(s.outcome), r)
 		}
 		seen[s.outcome] = "outcome"
 	}
 	for _, c := range s.covariates {
 		if r, dup := seen[c]; dup {
 			if r == "covariate" {
-				return nil, fmt.Errorf("covariate %q is listed twice in Adjust", c)
+				return nil, fmt.Errorf("covariate %s is listed twice in Adjust", quoteValue(c))
 			}
-			return nil, fmt.Errorf("column %q is the %s and cannot also be a covariate", c, r)
+			return nil, fmt.Errorf("column %s is the %s and cannot also be a covariate", quoteValue(c), r)
 		}
 		seen[c] = "covariate"
 	}
@@ -509,7 +509,7 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 			// Two numeric codes with the treated one named.
 			tv, kind := parseNumber(strings.TrimSpace(treated))
 			if kind != numOK || !set[tv] {
-				return nil, fmt.Errorf("treatment %q: treated level %q is not one of its values %s", c.Name, treated, strings.Join(levels, ", "))
+				return nil, fmt.Errorf("treatment %q: treated level %s is not one of its values %s", c.Name, quoteValue(treated), strings.Join(levels, ", "))
 			}
 			for k, i := range rows {
 				if c.Num[i] == tv {
@@ -545,7 +545,7 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 				}
 			}
 			if code < 0 || !present[code] {
-				return nil, fmt.Errorf("treatment %q: treated level %q is not one of its values %q, %q", c.Name, tl, levels[0], levels[1])
+				return nil, fmt.Errorf("treatment %q: treated level %s is not one of its values %q, %q", c.Name, quoteValue(tl), levels[0], levels[1])
 			}
 			for k, i := range rows {
 				if c.Codes[i] == code {
