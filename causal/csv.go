@@ -533,7 +533,7 @@ func (r *csvRead) readPiece(piece, start, end int, in chan<- csvBatchIn, stop fu
 		}
 		for j, s := range rec {
 			if len(s) > r.o.MaxField {
-				return pieceResult{err: fmt.Errorf("the field has %d bytes, more than the limit of %d (it starts %s): check for an unclosed quote, or raise the limit (ReadOptions.MaxField)",
+				return pieceResult{err: fmt.Errorf("the field has %d bytes, more than the limit of %d (it starts %s): check for an unclosed quote, or raise the limit (--max-field; ReadOptions.MaxField in the library)",
 					len(s), r.o.MaxField, quoteValue(s)), errRow: row, column: r.names[j]}
 			}
 		}

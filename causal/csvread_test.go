@@ -307,3 +307,23 @@ func TestTreatedLevelIsANumber(t *testing.T) {
 		t.Errorf("5.0: %v", err)
 	}
 }
+
+// TestStrayTextInNumbers: one non-number among numbers in a covariate is
+// refused (it used to make the column silently categorical), unless
+// AsCategory names the column.
+func TestStrayTextInNumbers(t *testing.T) {
+	var b strings.Builder
+	b.WriteString("x,size,t\n")
+	for i := 1; i <= 300; i++ {
+		size := fmt.Sprint(i%6 + 1)
+		if i == 9 {
+			size = "0x1p3"
+		}
+		fmt.Fprintf(&b, "%d,%s,%d\n", i%17, size, (i/3)%2)
+	}
+	s := studyFrom(t, b.String()).Treat("t").Adjust("x", "size")
+	wantErr(t, s.Err(), `covariate "size" is read as text because row 9 holds "0x1p3"`, "299 of its 300 values are numbers")
+	if err := s.AsCategory("size").Err(); err != nil {
+		t.Errorf("AsCategory: %v", err)
+	}
+}

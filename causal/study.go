@@ -430,6 +430,9 @@ func (s *Study) resolve() (*Design, error) {
 		if err := tooManyLevels(c, used, len(rows)); err != nil {
 			return nil, err
 		}
+		if err := strayText(c, counts, s.asCategory[c.Name]); err != nil {
+			return nil, err
+		}
 		term := make([]int32, len(c.Levels)) // design column of each level, 0 for none
 		for l, k := range counts {
 			if l == ref || k == 0 {
@@ -590,4 +593,25 @@ func tooManyLevels(c *Column, levels, rows int) error {
 		}
 	}
 	return errors.New(msg)
+}
+
+// strayText refuses a covariate read as text although at least 99% of its
+// rows hold numbers (a typo such as 0x1p3 or 1_000 in a numeric column),
+// unless AsCategory names it.
+func strayText(c *Column, counts []int, asCategory bool) error {
+	if asCategory || c.textAt == "" {
+		return nil
+	}
+	nums, all := 0, 0
+	for l, k := range counts {
+		if _, kind := parseNumber(c.Levels[l]); kind == numOK {
+			nums += k
+		}
+		all += k
+	}
+	if nums == all || float64(nums) < 0.99*float64(all) {
+		return nil
+	}
+	return fmt.Errorf("covariate %q is read as text because %s, though %d of its %d values are numbers: fix that field (an empty field or NA is a missing value), or call .AsCategory(%q) to use its values as categories",
+		c.Name, c.textAt, nums, all, c.Name)
 }

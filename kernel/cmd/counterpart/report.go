@@ -39,6 +39,8 @@ func reportCommand() *command {
 		htmlOut := fs.String("html", "", "write a self-contained HTML report to FILE")
 		failOn := fs.String("fail-on", "", "exit 3 when the verdict is this bad: violated, or limited (limited or violated); with --trim the verdict on the trimmed units is judged")
 		dropIncomplete := fs.Bool("drop-incomplete", false, "drop rows with a missing value in a role column (counted in the report) instead of stopping")
+		delimiter := fs.String("delimiter", ",", "field separator of --data: one character such as , ; | or the word tab")
+		maxField := fs.Int("max-field", causal.DefaultMaxField, "longest field of --data accepted, in bytes")
 		pos, err := parse(c, fs, args)
 		if err != nil {
 			return err
@@ -78,7 +80,14 @@ func reportCommand() *command {
 		if _, err := os.Stat(*data); err != nil {
 			return fmt.Errorf("--data %s: %v", *data, errors.Unwrap(err))
 		}
-		s := causal.Load(*data).Treat(*treatment).Outcome(*outcome).Adjust(covs...)
+		delim, err := causal.ParseDelimiter(*delimiter)
+		if err != nil {
+			return fmt.Errorf("--%v", err)
+		}
+		if *maxField < 1 {
+			return fmt.Errorf("--max-field %d: use a positive number of bytes (default %d)", *maxField, causal.DefaultMaxField)
+		}
+		s := causal.LoadWith(*data, causal.ReadOptions{Delimiter: delim, MaxField: *maxField}).Treat(*treatment).Outcome(*outcome).Adjust(covs...)
 		if *treatedLevel != "" {
 			s = s.TreatedLevel(*treatedLevel)
 		}
