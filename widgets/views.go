@@ -193,6 +193,7 @@ func scoresParts(s *causal.Scores) []string {
 		separationHTML(s),
 		chartPart(CalibrationPlot(s)),
 		notePart("Each point is a tenth of the units, grouped by fitted score. Points near the diagonal: the scores match how often units are treated; a systematic bend suggests the model's form misses part of how treatment depends on the covariates."),
+		calibrationTable(s).HTML(),
 		termsTable(s).HTML(),
 	}
 }

@@ -551,6 +551,34 @@ stopifnot(abs(mean(psi_c)) < 1e-6)
 add_more("aipw", "ATC", aipw_atc, sqrt(sum(psi_c^2)) / n, "influence function", c_mu1, c_mu0)
 
 # ---------------------------------------------------------------------------------------------
+# 9. Calibration of the propensity scores (Hosmer & Lemeshow 1980, deciles of risk), by the textbook
+#    formula on the glm fitted scores of section 2 (NSW) and section 7 (water audits):
+#      breaks = unique(quantile(e, probs = seq(0, 1, 0.1), type = 7)); groups = cut(e, breaks,
+#      include.lowest = TRUE, right = TRUE); per group O = treated units, E = sum of e, n = units;
+#      C = sum (O - E)^2 / (E (1 - E / n)),  df = G - 2,  p = pchisq(C, df, lower.tail = FALSE).
+#    Tails: binom.test(O, n, E / n)$p.value (two-sided exact binomial) in the lowest and highest group.
+# ---------------------------------------------------------------------------------------------
+hosmer_lemeshow <- function(e, Tr) {
+  br <- unique(quantile(e, probs = seq(0, 1, 0.1), type = 7, names = FALSE))
+  g <- cut(e, breaks = br, include.lowest = TRUE, right = TRUE, labels = FALSE)
+  G0 <- length(br) - 1
+  n_g <- tabulate(g, G0)
+  O <- vapply(seq_len(G0), function(k) sum(Tr[g == k]), 0)
+  E <- vapply(seq_len(G0), function(k) sum(e[g == k]), 0)
+  keep <- n_g > 0
+  lo <- br[-length(br)][keep]; hi <- br[-1][keep]; n_g <- n_g[keep]; O <- O[keep]; E <- E[keep]
+  G <- length(n_g)
+  C <- sum((O - E)^2 / (E * (1 - E / n_g)))
+  df <- G - 2
+  tail_test <- function(k) list(n = n_g[k], observed_treated = O[k], expected_treated = E[k],
+                                mean_score = E[k] / n_g[k], p_value = binom.test(O[k], n_g[k], E[k] / n_g[k])$p.value)
+  list(statistic = C, df = df, p_value = pchisq(C, df, lower.tail = FALSE),
+       groups = list(lo = arr(lo), hi = arr(hi), n = arr(as.integer(n_g)), observed_treated = arr(O), expected_treated = arr(E)),
+       tails = list(lowest = tail_test(1), highest = tail_test(G)))
+}
+calibration <- list(nsw = hosmer_lemeshow(e, Tr), water_audits = hosmer_lemeshow(ew, Tw))
+
+# ---------------------------------------------------------------------------------------------
 # JSON
 # ---------------------------------------------------------------------------------------------
 res <- list(
@@ -595,6 +623,7 @@ res <- list(
   ),
   estimates = estimates,
   estimates_more = estimates_more,
+  calibration = calibration,
   separation = list(
     data = "testdata/reference/separation.csv",
     formula = "treat ~ x1 + gate",
@@ -632,5 +661,7 @@ cat("schooling reference level:", ref_level, "\n"); print(cfc)
 cat("separation, default control: warnings:", length(sep_default$warnings$v), " gate coef", sep_default$coef$v[3], " SE", sep_default$se$v[3], "\n")
 cat(sprintf("trimming (water audits): Crump alpha %.6f keeps %d of %d; percentile [%.6f, %.6f] keeps %d\n", cr$alpha,
             sum(ew >= cr$alpha & ew <= 1 - cr$alpha), nrow(wa), q5, q95, sum(keep_pct)))
+for (nm in names(calibration)) cat(sprintf("calibration (%s): Hosmer-Lemeshow C %.4f df %d p %.4g; tails p %.4g / %.4g\n", nm,
+  calibration[[nm]]$statistic, calibration[[nm]]$df, calibration[[nm]]$p_value, calibration[[nm]]$tails$lowest$p_value, calibration[[nm]]$tails$highest$p_value))
 for (x in trim_est) cat(sprintf("  after trimming at 0.1: %-22s %-4s %12.4f  SE %10.4f\n", x$estimator, x$estimand, x$value, x$se))
 cat("separation, epsilon 1e-12: warnings:", sep_tight$warnings$v, " gate coef", sep_tight$coef$v[3], " SE", sep_tight$se$v[3], "\n")
