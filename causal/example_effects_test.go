@@ -178,5 +178,5 @@ func ExampleScores_WithWeights() {
 	}
 	ww := sc.WithWeights(w, "capped ATT weights")
 	fmt.Printf("%s: control ESS %.0f, largest |SMD| %.3f\n", ww.Label, ww.ESSControl, ww.Balance().MaxAbsSMD())
-	// Output: capped ATT weights: control ESS 681, largest |SMD| 0.236
+	// Output: capped ATT weights: control ESS 681, largest |SMD| 0.293
 }

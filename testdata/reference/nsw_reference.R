@@ -108,7 +108,11 @@ stopifnot(abs(W / (n1 * n0) - auc) < 1e-12)
 # 3. Balance
 #   binary (only 0/1):  SMD = (p1 - p0) / sqrt((p1(1-p1) + p0(1-p0))/2)
 #   otherwise:          SMD = (m1 - m0) / sqrt((s1^2 + s0^2)/2)
-#   weighted:           m_a = sum w x / sum w,  s_a^2 = sum w (x - m_a)^2 / (sum w - sum w^2 / sum w)
+#   weighted:           m_a = sum w x / sum w; the denominator stays the UNWEIGHTED one above, before and
+#                       after weighting, so that a change of the SMD reflects the means only (Rosenbaum &
+#                       Rubin 1985; Stuart 2010). The option with weighted arm variances (Austin & Stuart
+#                       2015) is balance_weighted_ate_weighted_sd:
+#                       s_a^2 = sum w (x - m_a)^2 / (sum w - sum w^2 / sum w)
 #                       (all w = 1 gives the n_a - 1 sample variance)
 #   variance ratio = s1^2 / s0^2 (null for binary columns)
 #   KS = ks.test(x[treat==1], x[treat==0])$statistic (unweighted only)
@@ -116,16 +120,19 @@ stopifnot(abs(W / (n1 * n0) - auc) < 1e-12)
 is_binary <- function(x) all(x %in% c(0, 1))
 wmean <- function(x, w) sum(w * x) / sum(w)
 wvar <- function(x, w) { m <- wmean(x, w); sum(w * (x - m)^2) / (sum(w) - sum(w^2) / sum(w)) }
-smd_w <- function(x, w) {
+smd_w <- function(x, w, weighted_sd = TRUE) {
   x1 <- x[Tr == 1]; w1 <- w[Tr == 1]; x0 <- x[Tr == 0]; w0 <- w[Tr == 0]
   m1 <- wmean(x1, w1); m0 <- wmean(x0, w0)
+  # the arms' spread: weighted (Austin & Stuart 2015) or unweighted (w = 1)
+  sw1 <- if (weighted_sd) w1 else rep(1, length(x1)); sw0 <- if (weighted_sd) w0 else rep(1, length(x0))
   if (is_binary(x)) {
-    smd <- (m1 - m0) / sqrt((m1 * (1 - m1) + m0 * (1 - m0)) / 2)
+    p1 <- wmean(x1, sw1); p0 <- wmean(x0, sw0)
+    smd <- (m1 - m0) / sqrt((p1 * (1 - p1) + p0 * (1 - p0)) / 2)
     vr <- NA
   } else {
-    v1 <- wvar(x1, w1); v0 <- wvar(x0, w0)
+    v1 <- wvar(x1, sw1); v0 <- wvar(x0, sw0)
     smd <- (m1 - m0) / sqrt((v1 + v0) / 2)
-    vr <- v1 / v0
+    vr <- wvar(x1, w1) / wvar(x0, w0)
   }
   list(smd = smd, variance_ratio = vr, mean_treated = m1, mean_control = m0)
 }
@@ -145,16 +152,19 @@ for (v in covs) {
 w_ate <- Tr / e + (1 - Tr) / (1 - e)
 w_att <- Tr + (1 - Tr) * e / (1 - e)
 w_ato <- Tr * (1 - e) + (1 - Tr) * e
-weighted_balance <- function(w) {
+weighted_balance <- function(w, weighted_sd = FALSE) {
   res <- list()
   for (v in covs) {
-    b <- smd_w(d[[v]], w)
+    b <- smd_w(d[[v]], w, weighted_sd)
     res[[v]] <- list(smd = b$smd, mean_treated = b$mean_treated, mean_control = b$mean_control)
   }
   res
 }
 balance_weighted_ate <- weighted_balance(w_ate)
 balance_weighted_ato <- weighted_balance(w_ato)
+balance_weighted_ate_weighted_sd <- weighted_balance(w_ate, weighted_sd = TRUE)
+# with unit weights both denominators are the unweighted one
+stopifnot(all(vapply(covs, function(v) abs(smd_w(d[[v]], ones, TRUE)$smd - smd_w(d[[v]], ones, FALSE)$smd) < 1e-15, TRUE)))
 kish <- function(w) sum(w)^2 / sum(w^2)
 ess <- list()
 for (nm in c("ate", "att", "ato")) {
@@ -608,6 +618,7 @@ res <- list(
   balance = balance,
   balance_weighted_ate = balance_weighted_ate,
   balance_weighted_ato = balance_weighted_ato,
+  balance_weighted_ate_weighted_sd = balance_weighted_ate_weighted_sd,
   ess = ess,
   categorical = list(
     data = "testdata/reference/nsw_schooling.csv",
