@@ -216,7 +216,7 @@ add_est("difference_in_means", "ATE", dim_value, dim_se, "unpooled variances")
 # Regression adjustment. Target set U (all / treated / controls), m = |U|:
 #   tau = mean_{i in U} [f1(x_i) - f0(x_i)] = xbar' (b1 - b0)
 #   Var = xbar' (V1 + V0) xbar + (b1 - b0)' S (b1 - b0) / m,  S = cov(X[U, ]) (n - 1 form)
-reg_adj <- function(idx) {
+reg_adj <- function(idx, V1 = vcov(f1), V0 = vcov(f0)) {
   XU <- X[idx, , drop = FALSE]
   xbar <- colMeans(XU)
   db <- b1 - b0
@@ -229,6 +229,28 @@ reg_adj <- function(idx) {
 ra <- reg_adj(seq_len(n));  add_est("regression_adjustment", "ATE", ra[1], ra[2], "delta method")
 ra <- reg_adj(which(Tr == 1)); add_est("regression_adjustment", "ATT", ra[1], ra[2], "delta method")
 ra <- reg_adj(which(Tr == 0)); add_est("regression_adjustment", "ATC", ra[1], ra[2], "delta method")
+
+# Heteroskedasticity-robust (sandwich) covariances of the arm models, by formula (no contributed package):
+#   V_a = (X'X)^{-1} (sum_i omega_i x_i x_i') (X'X)^{-1} over the arm's units, r_i the lm residual,
+#   h_i = x_i'(X'X)^{-1} x_i (hatvalues), k = number of coefficients, n_a units:
+#   HC0 omega = r^2 (White 1980); HC1 omega = r^2 n_a / (n_a - k); HC3 omega = r^2 / (1 - h)^2
+#   (MacKinnon & White 1985). The regression-adjustment SE then uses V_a in the same delta-method formula.
+hc_vcov <- function(f, type) {
+  Xa <- model.matrix(f); r <- as.numeric(resid(f)); h <- as.numeric(hatvalues(f)); na <- nrow(Xa); k <- ncol(Xa)
+  stopifnot(max(abs(h - rowSums((Xa %*% solve(crossprod(Xa))) * Xa))) < 1e-10)
+  omega <- switch(type, HC0 = r^2, HC1 = r^2 * na / (na - k), HC3 = r^2 / (1 - h)^2)
+  Bi <- solve(crossprod(Xa))
+  Bi %*% crossprod(Xa * omega, Xa) %*% Bi
+}
+regression_adjustment_hc <- list()
+for (type in c("HC0", "HC1", "HC3")) {
+  V1h <- hc_vcov(f1, type); V0h <- hc_vcov(f0, type)
+  for (tg in c("ATE", "ATT", "ATC")) {
+    idx <- switch(tg, ATE = seq_len(n), ATT = which(Tr == 1), ATC = which(Tr == 0))
+    ra <- reg_adj(idx, V1h, V0h)
+    regression_adjustment_hc[[length(regression_adjustment_hc) + 1]] <- list(estimand = tg, covariance = type, value = ra[1], se = ra[2])
+  }
+}
 
 # ---- Stacked M-estimation sandwich for the weighting estimators ------------------------------
 # theta = (beta (p), mu1, mu0). g_i(theta) = [ x_i (T_i - e_i) ; g1_i ; g0_i ],  e_i = plogis(x_i' beta).
@@ -634,6 +656,7 @@ res <- list(
   ),
   estimates = estimates,
   estimates_more = estimates_more,
+  regression_adjustment_hc = regression_adjustment_hc,
   calibration = calibration,
   separation = list(
     data = "testdata/reference/separation.csv",
