@@ -24,7 +24,7 @@ func ExampleScores_Weights() {
 func ExampleWeights_Truncate() {
 	w := water().Propensity().Weights(causal.ATE).Truncate(1, 99)
 	fmt.Printf("%d weights moved; ESS treated %.0f\n", w.Truncation.Changed, w.ESSTreated)
-	// Output: 82 weights moved; ESS treated 559
+	// Output: 80 weights moved; ESS treated 575
 }
 
 func ExampleWeights_Balance() {

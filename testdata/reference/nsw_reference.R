@@ -583,6 +583,37 @@ stopifnot(abs(mean(psi_c)) < 1e-6)
 add_more("aipw", "ATC", aipw_atc, sqrt(sum(psi_c^2)) / n, "influence function", c_mu1, c_mu0)
 
 # ---------------------------------------------------------------------------------------------
+# 8b. Weight truncation. Pooled (Cole & Hernan 2008: stabilised weights truncated at percentiles of their
+#     distribution over all units): arm a's positive weights divided by their mean m_a, s = w / m_a;
+#     L, U = quantile(s, c(lo, hi) / 100, type = 7) over all units with w > 0; arm a's weights moved into
+#     [L m_a, U m_a]; zero weights stay zero. Within arms (the option): each arm's weights moved into
+#     its own quantile(w_a, c(lo, hi) / 100, type = 7). Kish ESS per arm after truncation.
+# ---------------------------------------------------------------------------------------------
+truncate_weights <- function(w, Tr, lo, hi, pooled) {
+  if (pooled) {
+    pos <- w > 0
+    m <- c(mean(w[Tr == 1 & pos]), mean(w[Tr == 0 & pos]))
+    s <- ifelse(Tr == 1, w / m[1], w / m[2])
+    q <- unname(quantile(s[pos], c(lo, hi) / 100, type = 7))
+    b1 <- q * m[1]; b0 <- q * m[2]
+  } else {
+    b1 <- unname(quantile(w[Tr == 1], c(lo, hi) / 100, type = 7))
+    b0 <- unname(quantile(w[Tr == 0], c(lo, hi) / 100, type = 7))
+  }
+  lo_b <- ifelse(Tr == 1, b1[1], b0[1]); hi_b <- ifelse(Tr == 1, b1[2], b0[2])
+  wt <- ifelse(w == 0, 0, pmin(pmax(w, lo_b), hi_b))
+  list(lo_percentile = lo, hi_percentile = hi, pooled = pooled,
+       treated_bounds = arr(b1), control_bounds = arr(b0), changed = sum(wt != w),
+       ess_treated = kish(wt[Tr == 1]), ess_control = kish(wt[Tr == 0]))
+}
+ew_ate <- Tw / ew + (1 - Tw) / (1 - ew)
+truncation <- list(
+  water_ate_pooled_1_99 = truncate_weights(ew_ate, Tw, 1, 99, TRUE),
+  water_ate_within_arms_1_99 = truncate_weights(ew_ate, Tw, 1, 99, FALSE),
+  nsw_ate_pooled_5_95 = truncate_weights(w_ate, Tr, 5, 95, TRUE)
+)
+
+# ---------------------------------------------------------------------------------------------
 # 9. Calibration of the propensity scores (Hosmer & Lemeshow 1980, deciles of risk), by the textbook
 #    formula on the glm fitted scores of section 2 (NSW) and section 7 (water audits):
 #      breaks = unique(quantile(e, probs = seq(0, 1, 0.1), type = 7)); groups = cut(e, breaks,
@@ -657,6 +688,7 @@ res <- list(
   estimates = estimates,
   estimates_more = estimates_more,
   regression_adjustment_hc = regression_adjustment_hc,
+  truncation = truncation,
   calibration = calibration,
   separation = list(
     data = "testdata/reference/separation.csv",
