@@ -113,16 +113,23 @@ func (sc *Scores) CalibrationTest() *CalibrationTest {
 	if err := sc.Err(); err != nil {
 		return &CalibrationTest{err: err}
 	}
-	return calibrationTest(sc.E, sc.Design.T)
+	groups, units := sc.groups, 0
+	for _, g := range groups {
+		units += g.N
+	}
+	if units != len(sc.E) { // scores not built by the fit: group them now
+		groups = calibrationGroups(sortScores(sc.E, sc.Design.T))
+	}
+	return calibrationTest(groups, len(sc.E))
 }
 
-func calibrationTest(e, t []float64) *CalibrationTest {
+func calibrationTest(groups []CalibrationGroup, n int) *CalibrationTest {
 	c := &CalibrationTest{Alpha: CalibrationAlpha, HL: math.NaN(), HLP: math.NaN()}
-	if n := len(e); n < 2 {
+	if n < 2 {
 		c.err = fmt.Errorf("calibration test: %d unit%s; it needs at least 2", n, plural(n, "", "s"))
 		return c
 	}
-	c.Groups = calibrationGroups(sortScores(e, t))
+	c.Groups = append([]CalibrationGroup(nil), groups...)
 	// Hosmer–Lemeshow.
 	c.DF = len(c.Groups) - 2
 	if c.DF >= 1 {

@@ -79,6 +79,8 @@ type Scores struct {
 	cov  []float64
 	opts logitOptions
 	err  error
+	// groups are the deciles of risk (calibrationGroups) of E.
+	groups []CalibrationGroup
 	// trimAlpha is the α of the symmetric trimming these scores were
 	// refitted after (0: none); see verdictDefaults.
 	trimAlpha float64
@@ -280,7 +282,8 @@ func propensityFor(d *Design, o logitOptions) *Scores {
 	}
 	sorted := sortScores(sc.E, d.T)
 	sc.AUC = aucSorted(sorted)
-	for _, g := range calibrationGroups(sorted) {
+	sc.groups = calibrationGroups(sorted)
+	for _, g := range sc.groups {
 		sc.Calibration = append(sc.Calibration, CalibrationBin{Lo: g.Lo, Hi: g.Hi, MeanScore: g.MeanScore, ShareTreated: g.ShareTreated, N: g.N})
 	}
 	return sc
