@@ -139,3 +139,30 @@ func TestCalibrationFaces(t *testing.T) {
 		t.Error("empty error face")
 	}
 }
+
+// Edge cases: scores pinned at 1 by separation (the gate = 1 units) add
+// nothing to Ĉ when their arm is the only one; a single 0/1 covariate (black,
+// 84% of NSW) gives two distinct scores whose type-7 deciles collapse to one
+// group, as R's unique(quantile(...)) and cut do: too few groups for the
+// Hosmer–Lemeshow test (df < 1, statistic null); the tail check covers that
+// one group.
+func TestCalibrationEdgeCases(t *testing.T) {
+	sep := Load("../testdata/reference/separation.csv").Treat("treat").Adjust("x1", "gate").Propensity().CalibrationTest()
+	if sep.Err() != nil || sep.DF < 1 || sep.HL != sep.HL || sep.HL > 1e6 {
+		t.Errorf("separated fit: err %v, df %d, C %g", sep.Err(), sep.DF, sep.HL)
+	}
+	hi := sep.Tails[len(sep.Tails)-1]
+	if hi.P != 1 || hi.Flagged {
+		t.Errorf("pinned top decile: %+v, want p = 1 and no flag", hi)
+	}
+	two := nswStudy().Adjust("black").Propensity().CalibrationTest()
+	if two.Err() != nil || len(two.Groups) != 1 || two.DF != -1 || two.HL == two.HL || len(two.Tails) != 1 {
+		t.Errorf("two-score fit: err %v, %d groups, df %d, C %g, %d tails", two.Err(), len(two.Groups), two.DF, two.HL, len(two.Tails))
+	}
+	if !strings.Contains(two.String(), "not computed") {
+		t.Errorf("text face of the two-score fit:\n%s", two)
+	}
+	if b, err := json.Marshal(two); err != nil || !strings.Contains(string(b), `"statistic":null`) {
+		t.Errorf("JSON of the two-score fit: %s (%v)", b, err)
+	}
+}
