@@ -43,3 +43,11 @@ func TestScoresViewCalibrationTable(t *testing.T) {
 		t.Errorf("NSW calibration table wrong: flagged, or the Hosmer–Lemeshow p of R (0.306) missing")
 	}
 }
+
+// The extrapolation view names the leverage rule, as the text and JSON do.
+func TestExtrapolationViewNamesLeverageRule(t *testing.T) {
+	a := causal.Load("../testdata/nsw_dehejia_wahba.csv").Treat("treat").Outcome("re78").Adjust("age", "educ", "re75").Propensity().Extrapolation(causal.ATE)
+	if h := HTML(a); !strings.Contains(h, "regressor variable hull") {
+		t.Error("extrapolation view does not name the leverage rule")
+	}
+}

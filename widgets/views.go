@@ -319,7 +319,7 @@ func extrapolationParts(a *causal.ExtrapolationAudit) []string {
 			parts = append(parts, chartPart(ExtrapolationPlot(c)), notePart(heldNote(c)))
 		}
 	}
-	parts = append(parts, extrapolationTable(a).HTML())
+	parts = append(parts, extrapolationTable(a).HTML(), notePart("Unsupported: outside the fitting arm's range on a term, or "+causal.LeverageRule+"."))
 	if tr := termRangesTable(a); len(tr.Rows) > 0 {
 		parts = append(parts, tr.HTML())
 	}
