@@ -205,7 +205,6 @@ var binaryMagic = []struct{ prefix, what string }{
 	{"\x28\xb5\x2f\xfd", "zstd-compressed: decompress it (unzstd) and load the result, or recompress it with gzip"},
 	{"7z\xbc\xaf\x27\x1c", "a 7-Zip archive, not CSV text: extract it and load the CSV inside"},
 	{"SQLite format 3\x00", "an SQLite database, not CSV text: export a table as CSV and load that"},
-	{"%PDF-", "a PDF document, not CSV text"},
 	{"\xff\xfe", "UTF-16 text: save it as UTF-8 (for example iconv -f UTF-16 -t UTF-8 in.csv > out.csv) and load that"},
 	{"\xfe\xff", "UTF-16 text: save it as UTF-8 (for example iconv -f UTF-16 -t UTF-8 in.csv > out.csv) and load that"},
 }
@@ -214,6 +213,11 @@ var binaryMagic = []struct{ prefix, what string }{
 // what it is, and decompresses gzip.
 func sniff(data []byte, depth int) ([]byte, error) {
 	has := func(prefix string) bool { return bytes.HasPrefix(data, []byte(prefix)) }
+	// Magic that is printable text counts after leading blanks and quotes
+	// too, so that a header such as " %PDF-" reads the same as "%PDF-".
+	textHas := func(prefix string) bool {
+		return bytes.HasPrefix(bytes.TrimLeft(data, " \t\r\n\""), []byte(prefix))
+	}
 	head := data[:min(len(data), 8192)]
 	// binary: the start is not UTF-8 text (a file that merely begins with
 	// printable magic, such as a column named BZh91AY&SY, is still text).
@@ -244,13 +248,15 @@ func sniff(data []byte, depth int) ([]byte, error) {
 			return nil, fmt.Errorf("the file is gzip-compressed but damaged (%v): check the download, or decompress it yourself", err)
 		}
 		return sniff(bytes.TrimPrefix(out, []byte{0xEF, 0xBB, 0xBF}), depth+1)
-	case has("BZh") && len(data) >= 10 && data[3] >= '1' && data[3] <= '9' && string(data[4:10]) == "1AY&SY" && binary():
+	case textHas("BZh") && bytes.Contains(head[:min(len(head), 24)], []byte("1AY&SY")) && binary():
 		return nil, errors.New("the file is bzip2-compressed: decompress it (bunzip2) and load the result, or recompress it with gzip")
+	case textHas("%PDF-") && binary():
+		return nil, errors.New("the file is a PDF document, not CSV text")
 	case has("PAR1") && bytes.HasSuffix(data, []byte("PAR1")):
 		return nil, errors.New("the file is a Parquet file, not CSV text: export it as CSV (for example with DuckDB: COPY (FROM 'file.parquet') TO 'file.csv')")
 	}
 	for _, m := range binaryMagic {
-		if has(m.prefix) && (m.prefix != "%PDF-" || binary()) {
+		if has(m.prefix) {
 			return nil, errors.New("the file is " + m.what)
 		}
 	}
