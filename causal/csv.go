@@ -216,7 +216,7 @@ func sniff(data []byte, depth int) ([]byte, error) {
 	// Magic that is printable text counts after leading blanks and quotes
 	// too, so that a header such as " %PDF-" reads the same as "%PDF-".
 	textHas := func(prefix string) bool {
-		return bytes.HasPrefix(bytes.TrimLeft(data, " \t\r\n\""), []byte(prefix))
+		return bytes.HasPrefix(bytes.TrimLeftFunc(data, func(r rune) bool { return unicode.IsSpace(r) || r == '"' }), []byte(prefix))
 	}
 	head := data[:min(len(data), 8192)]
 	// binary: the start is not UTF-8 text (a file that merely begins with
