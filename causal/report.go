@@ -148,7 +148,7 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		return nil, err
 	}
 	if d.Y == nil {
-		return nil, errors.New("no outcome column: name one (Outcome / --outcome)")
+		return nil, settingErr("Outcome", "column", "no outcome column: name one with ", "")
 	}
 	sc := s.Propensity()
 	if err := sc.Err(); err != nil {
@@ -161,16 +161,18 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	r.Support = sc.Support()
 	var cells []*Cells
 	if cols := discreteCovariates(d); len(cols) > 0 {
+		// The cells are an optional part: when they fail they stay in the
+		// report marked failed, and the verdict says it did not judge them.
 		r.Cells = s.Cells(cols...)
-		if err := r.Cells.Err(); err != nil {
-			return nil, err
+		if r.Cells.Err() == nil {
+			cells = append(cells, r.Cells)
 		}
-		cells = append(cells, r.Cells)
 	}
 	r.Verdict = sc.Verdict(VerdictOptions{}, cells...)
 	if err := r.Verdict.Err(); err != nil {
 		return nil, err
 	}
+	noteFailedCells(r.Verdict, r.Cells)
 	est := sc
 	if trim {
 		tr := sc.Trim(rule)
@@ -189,19 +191,20 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		r.Trimming = rt
 		est = tr.Scores
 		var tcells []*Cells
+		var c *Cells
 		if cols := discreteCovariates(tr.Design); len(cols) > 0 {
 			// The positivity cells of the kept units, by the kept design's rows.
-			c := tr.Cells(cols...)
-			if err := c.Err(); err != nil {
-				return nil, err
+			c = tr.Cells(cols...)
+			if c.Err() == nil {
+				tcells = append(tcells, c)
 			}
-			tcells = append(tcells, c)
 		}
 		r.trimmedCells = tcells
 		r.VerdictTrimmed = est.Verdict(VerdictOptions{}, tcells...)
 		if err := r.VerdictTrimmed.Err(); err != nil {
 			return nil, err
 		}
+		noteFailedCells(r.VerdictTrimmed, c)
 	}
 	w := est.Weights(o.Estimand)
 	if err := w.Err(); err != nil {
@@ -234,12 +237,20 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 				primary = IPWNormalized
 			}
 		}
+		// A failed bootstrap is an optional part: it stays in the report,
+		// marked failed with why (see Bootstrap.Status), and takes nothing else with it.
 		r.Bootstrap = est.Bootstrap(ctx, primary, o.Estimand, BootstrapOptions{Replicates: o.Bootstrap, Seed: o.Seed, Progress: o.Progress})
-		if err := r.Bootstrap.Err(); err != nil {
-			return nil, err
-		}
 	}
 	return r, nil
+}
+
+// noteFailedCells adds to v a note that the positivity cells c failed and
+// were not judged (nothing when c is nil or did not fail).
+func noteFailedCells(v *Verdict, c *Cells) {
+	if c == nil || c.Err() == nil || v == nil {
+		return
+	}
+	v.Notes = append(v.Notes, "positivity cells on "+strings.Join(c.Columns, ", ")+" could not be built ("+c.Err().Error()+"): this verdict does not judge them")
 }
 
 // Err says why the report is unusable (nil, or not built by BuildReport).
@@ -302,7 +313,14 @@ func (r *Report) String() string {
 		fmt.Fprintf(&b, "  %-22s %s %12.4g  SE %10.4g  95%% CI [%.4g, %.4g]  (%s)%s\n", e.Estimator, e.Estimand, e.Value, e.SE, e.CI95.Lo, e.CI95.Hi, e.SEMethod, flag)
 	}
 	if r.Bootstrap != nil {
-		fmt.Fprintf(&b, "  bootstrap: %s\n", strings.TrimSpace(strings.SplitN(r.Bootstrap.String(), "\n", 2)[0]))
+		if st, why := r.Bootstrap.Status(); st == BootstrapFailed {
+			fmt.Fprintf(&b, "  bootstrap: FAILED: %s\n", why)
+		} else {
+			fmt.Fprintf(&b, "  bootstrap: %s\n", strings.TrimSpace(strings.SplitN(r.Bootstrap.String(), "\n", 2)[0]))
+		}
+	}
+	if r.Cells != nil && r.Cells.Err() != nil {
+		fmt.Fprintf(&b, "positivity cells: FAILED: %v (the verdict does not judge them)\n", r.Cells.Err())
 	}
 	fmt.Fprintf(&b, "verdict: %s", strings.ToUpper(r.Verdict.Status))
 	if len(r.Verdict.Reasons) > 0 {
