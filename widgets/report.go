@@ -31,6 +31,9 @@ func ReportPage(r *causal.Report, echartsJS []byte) string {
 	boot := ""
 	if r.Bootstrap != nil {
 		boot = fmt.Sprintf("%d replicates, seed %d", r.Options.Bootstrap, r.Options.Seed)
+		if st, _ := r.Bootstrap.Status(); st != causal.BootstrapOK {
+			boot += " (" + st + ")"
+		}
 	}
 	trim := ""
 	if r.Trimming != nil {
@@ -47,7 +50,9 @@ func ReportPage(r *causal.Report, echartsJS []byte) string {
 		head.WriteString(ErrorPanel(err))
 	}
 	body := []string{head.String(), HTML(r.Verdict), HTML(r.Propensity), HTML(r.Support)}
-	if r.Cells != nil {
+	if r.Cells != nil && r.Cells.Err() != nil {
+		body = append(body, PartFailedPanel("Positivity cells", ErrorMessage(r.Cells.Err())+" (the verdict does not judge them)"))
+	} else if r.Cells != nil {
 		body = append(body, HTML(r.Cells))
 	}
 	body = append(body, HTML(r.Balance))
@@ -55,7 +60,9 @@ func ReportPage(r *causal.Report, echartsJS []byte) string {
 		body = append(body, HTML(r.Trimmed))
 	}
 	body = append(body, HTML(&causal.Estimates{Estimand: r.Options.Estimand, Items: r.Estimates}))
-	if r.Bootstrap != nil {
+	if st, why := r.Bootstrap.Status(); r.Bootstrap != nil && st == causal.BootstrapFailed {
+		body = append(body, PartFailedPanel("Bootstrap", why))
+	} else if r.Bootstrap != nil {
 		body = append(body, HTML(r.Bootstrap))
 	}
 	var c strings.Builder
