@@ -1,0 +1,88 @@
+package kernel
+
+import (
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// A write that fails leaves the earlier file as it was and no temporary
+// file behind; one that succeeds replaces it whole.
+func TestWriteFileAtomic(t *testing.T) {
+	dir := t.TempDir()
+	path := filepath.Join(dir, "out.json")
+	if err := WriteFileAtomic(path, []byte("first"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if err := WriteFileAtomic(path, []byte("second"), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	if b, _ := os.ReadFile(path); string(b) != "second" {
+		t.Fatalf("content %q", b)
+	}
+	if fi, _ := os.Stat(path); fi.Mode().Perm() != 0o600 {
+		t.Errorf("mode %v", fi.Mode())
+	}
+	// Failures: the target is a folder; its folder is missing; its folder
+	// cannot be written (a file stands where the folder should be).
+	sub := filepath.Join(dir, "sub")
+	os.Mkdir(sub, 0o755)
+	os.WriteFile(filepath.Join(sub, "keep"), []byte("x"), 0o644)
+	for _, bad := range []string{sub, filepath.Join(dir, "missing", "out.json"), filepath.Join(path, "out.json")} {
+		if err := WriteFileAtomic(bad, []byte("third"), 0o644); err == nil {
+			t.Errorf("%s: no error", bad)
+		}
+	}
+	// A staged file discarded, and one whose commit fails, leave the earlier file.
+	st, err := StageFile(path, []byte("fourth"), 0o644)
+	if err != nil {
+		t.Fatal(err)
+	}
+	st.Discard()
+	if b, _ := os.ReadFile(path); string(b) != "second" {
+		t.Fatalf("after a discarded stage: %q", b)
+	}
+	st, err = StageFile(path, []byte("fifth"), 0o644)
+	if err != nil {
+		t.Fatal(err)
+	}
+	os.Remove(path)
+	os.Mkdir(path, 0o755) // the target became a non-empty folder: rename fails
+	os.WriteFile(filepath.Join(path, "x"), nil, 0o644)
+	if err := st.Commit(); err == nil {
+		t.Error("commit over a non-empty folder succeeded")
+	}
+	os.RemoveAll(path)
+	entries, _ := os.ReadDir(dir)
+	for _, e := range entries {
+		if strings.HasSuffix(e.Name(), ".tmp") {
+			t.Errorf("temporary file %s left behind", e.Name())
+		}
+	}
+}
+
+func TestSamePath(t *testing.T) {
+	dir := t.TempDir()
+	a := filepath.Join(dir, "a.csv")
+	os.WriteFile(a, []byte("x"), 0o644)
+	link := filepath.Join(dir, "l.csv")
+	if err := os.Symlink(a, link); err != nil {
+		t.Fatal(err)
+	}
+	hard := filepath.Join(dir, "h.csv")
+	if err := os.Link(a, hard); err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range []struct {
+		x, y string
+		same bool
+	}{
+		{a, filepath.Join(dir, ".", "sub", "..", "a.csv"), true}, {a, link, true}, {a, hard, true},
+		{a, filepath.Join(dir, "b.csv"), false}, {a, "", false},
+	} {
+		if got := SamePath(c.x, c.y); got != c.same {
+			t.Errorf("SamePath(%s, %s) = %v", c.x, c.y, got)
+		}
+	}
+}
