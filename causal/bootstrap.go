@@ -92,7 +92,7 @@ const (
 // how few replicates succeeded and the first failure).
 func (b *Bootstrap) Status() (status, why string) {
 	if err := b.Err(); err != nil {
-		return BootstrapFailed, err.Error()
+		return BootstrapFailed, strings.TrimPrefix(err.Error(), "bootstrap: ")
 	}
 	if k := len(b.Replicates); k < 2 {
 		why = fmt.Sprintf("%d of %d replicates succeeded: no standard error or interval", k, b.Done)
@@ -482,7 +482,7 @@ func (b *Bootstrap) MarshalJSON() ([]byte, error) {
 			Estimand  string `json:"estimand"`
 			Requested int    `json:"replicates_requested"`
 			Seed      uint64 `json:"seed"`
-		}{"failed", err.Error(), b.Estimator.String(), b.Estimand.String(), b.Requested, b.Seed})
+		}{"failed", strings.TrimPrefix(err.Error(), "bootstrap: "), b.Estimator.String(), b.Estimand.String(), b.Requested, b.Seed})
 	}
 	type bin struct {
 		Lo    float64 `json:"lo"`

@@ -93,7 +93,9 @@ func TestSettingErrorsRephrase(t *testing.T) {
 	x := []float64{1, 2, 3, 4, 5, 6, 7, 8}
 	missing := []float64{1, 2, 3, 4, 5, 6, 7, 8}
 	missing[3] = math.NaN()
-	flag := func(setting, value string) string { return "--" + strings.ToLower(setting) + map[bool]string{true: "", false: " " + value}[value == ""] }
+	flag := func(setting, value string) string {
+		return "--" + strings.ToLower(setting) + map[bool]string{true: "", false: " " + value}[value == ""]
+	}
 	for _, c := range []struct {
 		s          *Study
 		setting    string
@@ -155,6 +157,20 @@ func TestReportKeepsFailedBootstrap(t *testing.T) {
 		}
 		if !strings.Contains(r.String(), "bootstrap: FAILED: ") {
 			t.Errorf("%s: text lacks the failed bootstrap:\n%s", c.name, r)
+		}
+	}
+}
+
+// A trimming α is a decimal number: Go's other literal forms are refused.
+func TestParseTrimDecimalOnly(t *testing.T) {
+	for _, bad := range []string{"0x1p-3", "0.1_0", "1_0", "Inf", "NaN", "0.5", "-0.1", "0.1abc", ""} {
+		if _, on, err := ParseTrim(bad); bad != "" && err == nil {
+			t.Errorf("ParseTrim(%q) accepted (trim %v)", bad, on)
+		}
+	}
+	for _, good := range []string{"0.1", ".05", "1e-1", "none", "optimal"} {
+		if _, _, err := ParseTrim(good); err != nil {
+			t.Errorf("ParseTrim(%q): %v", good, err)
 		}
 	}
 }

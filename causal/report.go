@@ -97,7 +97,7 @@ func ParseTrim(s string) (TrimRule, bool, error) {
 		return CrumpOptimal(), true, nil
 	}
 	a, err := strconv.ParseFloat(s, 64)
-	if err != nil || math.IsNaN(a) || a < 0 || a >= 0.5 {
+	if err != nil || !decimalText.MatchString(s) || a < 0 || a >= 0.5 {
 		return TrimRule{}, false, fmt.Errorf("trim %q: use none, optimal, or a number α with 0 ≤ α < 0.5 (scores kept in [α, 1−α]), e.g. 0.1", s)
 	}
 	if a == 0 {

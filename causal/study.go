@@ -283,7 +283,7 @@ func (s *Study) resolve() (*Design, error) {
 	for _, c := range s.covariates {
 		if r, dup := seen[c]; dup {
 			if r == "covariate" {
-				return nil, fmt.Errorf("covariate %q is listed twice in Adjust", c)
+				return nil, fmt.Errorf("covariate %q is listed twice among the covariates", c)
 			}
 			return nil, fmt.Errorf("column %q is the %s and cannot also be a covariate", c, r)
 		}
@@ -466,7 +466,8 @@ func (s *Study) column(name, role string) (*Column, error) {
 	return c, nil
 }
 
-// decimalText is the grammar of a numeric treated level: an optional sign,
+// decimalText is the grammar of a number typed as an option (a treated
+// level, a trimming α): an optional sign,
 // digits with an optional decimal point, an optional exponent (no hex, no
 // underscores, no Inf or NaN).
 var decimalText = regexp.MustCompile(`^[+-]?([0-9]+\.?[0-9]*|\.[0-9]+)([eE][+-]?[0-9]+)?$`)
@@ -497,7 +498,7 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 			// The whole text must be a decimal number ("1abc" is not 1).
 			tv, err := strconv.ParseFloat(treated, 64)
 			if err != nil || !decimalText.MatchString(treated) || !set[tv] {
-				return nil, fmt.Errorf("treatment %q: treated level %q is not one of its values %s", c.Name, treated, strings.Join(levels, ", "))
+				return nil, settingErr("TreatedLevel", treated, fmt.Sprintf("treatment %q: ", c.Name), " names a value it does not have; its values are "+strings.Join(levels, ", "))
 			}
 			for k, i := range rows {
 				if c.Num[i] == tv {
@@ -533,7 +534,7 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 				}
 			}
 			if code < 0 || !present[code] {
-				return nil, fmt.Errorf("treatment %q: treated level %q is not one of its values %q, %q", c.Name, tl, levels[0], levels[1])
+				return nil, settingErr("TreatedLevel", tl, fmt.Sprintf("treatment %q: ", c.Name), fmt.Sprintf(" names a value it does not have; its values are %q, %q", levels[0], levels[1]))
 			}
 			for k, i := range rows {
 				if c.Codes[i] == code {

@@ -86,3 +86,16 @@ func TestSamePath(t *testing.T) {
 		}
 	}
 }
+
+func TestTerminalSafe(t *testing.T) {
+	for in, want := range map[string]string{
+		"plain\tline\nnext":   "plain\tline\nnext",
+		"a\x1b[31mred\x1b[0m": `a\x1b[31mred\x1b[0m`,
+		"cr\roverwrite\x7f":   `cr\x0doverwrite\x7f`,
+		"c1 \u009b2J é":       `c1 \x9b2J é`,
+	} {
+		if got := TerminalSafe(in); got != want {
+			t.Errorf("TerminalSafe(%q) = %q, want %q", in, got, want)
+		}
+	}
+}

@@ -462,23 +462,9 @@ func shownErrors(meta map[string]json.RawMessage, h string) []string {
 		msgs = widgets.ErrorPanelMessages(h)
 	}
 	for i, m := range msgs {
-		msgs[i] = terminalSafe(m)
+		msgs[i] = kernel.TerminalSafe(m)
 	}
 	return msgs
-}
-
-// terminalSafe replaces control characters other than line breaks and tabs
-// (such as the ESC of a colour sequence) with their \x.. escapes.
-func terminalSafe(s string) string {
-	var b strings.Builder
-	for _, r := range s {
-		if (r < 0x20 && r != '\n' && r != '\t') || r == 0x7f || (r >= 0x80 && r < 0xa0) {
-			fmt.Fprintf(&b, "\\x%02x", r)
-			continue
-		}
-		b.WriteRune(r)
-	}
-	return b.String()
 }
 
 // gonbCompileErrors turns GoNB's HTML compile-error report into lines like
