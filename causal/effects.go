@@ -82,6 +82,17 @@ const (
 	// means of every model covariate are equal in the two arms exactly.
 	// SE: stacked-equation sandwich.
 	OverlapWeighted
+
+	// NearestNeighbourMatching is 1:1 matching on the logit of the score,
+	// with replacement, no caliper (Abadie & Imbens 2006 estimator and
+	// variance; formula at Matching.Effect). Scores.Match offers K, a
+	// caliper, exact covariates and matching without replacement.
+	NearestNeighbourMatching
+
+	// Subclassification averages within-stratum differences in means over
+	// five strata at the quintiles of the score (Rosenbaum & Rubin 1984;
+	// formula at Strata.Effect). Scores.Subclassify chooses the number.
+	Subclassification
 )
 
 var estimatorIDs = map[Estimator]string{
@@ -91,6 +102,9 @@ var estimatorIDs = map[Estimator]string{
 	IPWNormalized:        "ipw_normalized",
 	AIPW:                 "aipw",
 	OverlapWeighted:      "overlap_weighted",
+
+	NearestNeighbourMatching: "nearest_neighbour_matching",
+	Subclassification:        "subclassification",
 }
 
 // AllEstimators lists the estimators in report order.
@@ -114,13 +128,13 @@ func ParseEstimator(id string) (Estimator, error) {
 			return e, nil
 		}
 	}
-	return 0, fmt.Errorf("unknown estimator %q: use one of difference_in_means, regression_adjustment, ipw, ipw_normalized, aipw, overlap_weighted", id)
+	return 0, fmt.Errorf("unknown estimator %q: use one of difference_in_means, regression_adjustment, ipw, ipw_normalized, aipw, overlap_weighted, nearest_neighbour_matching, subclassification", id)
 }
 
 // Estimands lists the estimands the estimator targets.
 func (e Estimator) Estimands() []Estimand {
 	switch e {
-	case DifferenceInMeans, RegressionAdjustment, IPW, IPWNormalized, AIPW:
+	case DifferenceInMeans, RegressionAdjustment, IPW, IPWNormalized, AIPW, NearestNeighbourMatching, Subclassification:
 		return []Estimand{ATE, ATT, ATC}
 	case OverlapWeighted:
 		return []Estimand{ATO}
@@ -284,6 +298,12 @@ func (sc *Scores) Effect(est Estimator, target Estimand, cells ...*Cells) *Effec
 		eff.err = err
 		return eff
 	}
+	switch est {
+	case NearestNeighbourMatching:
+		return sc.Match(MatchOptions{Estimand: target}).Effect(cells...)
+	case Subclassification:
+		return sc.Subclassify(0).Effect(target, cells...)
+	}
 	for _, c := range cells {
 		if err := c.Err(); err != nil {
 			eff.err = err
@@ -403,6 +423,9 @@ func (eff *Effect) aliasFlags(d *Design, oc *outcomes) {
 // covariance of the arm means (only without fw).
 func evaluate(sc *Scores, est Estimator, target Estimand, e []float64, oc *outcomes, fw []float64, withSE bool) (estOut, error) {
 	d := sc.Design
+	if est == NearestNeighbourMatching || est == Subclassification {
+		return estOut{}, fmt.Errorf("%s is not resampled or swept: use its own standard error (Scores.Match, Scores.Subclassify); for matching the bootstrap is not valid (Abadie & Imbens 2008)", est)
+	}
 	if e == nil {
 		e = sc.E
 	}
