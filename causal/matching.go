@@ -189,14 +189,17 @@ func buildArm(rows []int32, l []float64, group []int32, cells int) *armIndex {
 		}
 		ks[k] = key{g, l[r], r}
 	}
+	// (No NaN reaches here: plain comparisons.)
 	slices.SortFunc(ks, func(a, b key) int {
-		if c := cmp.Compare(a.g, b.g); c != 0 {
-			return c
+		switch {
+		case a.g != b.g:
+			return int(a.g - b.g)
+		case a.v < b.v:
+			return -1
+		case a.v > b.v:
+			return 1
 		}
-		if c := cmp.Compare(a.v, b.v); c != 0 {
-			return c
-		}
-		return cmp.Compare(a.r, b.r)
+		return int(a.r - b.r)
 	})
 	a := &armIndex{rows: make([]int32, len(ks)), val: make([]float64, len(ks)),
 		start: make([]int32, cells), end: make([]int32, cells)}
@@ -447,12 +450,16 @@ func (sc *Scores) Match(o MatchOptions) *Matching {
 			}
 		}
 	}
-	slices.SortStableFunc(raw, func(x, y rawSet) int {
-		if tx, ty := d.T[x.unit], d.T[y.unit]; tx != ty {
-			return cmp.Compare(ty, tx)
-		}
-		return cmp.Compare(x.unit, y.unit)
-	})
+	// Sets in design-row order (treated first for the ATE): already so
+	// with replacement; the greedy order must be undone.
+	if o.WithoutReplacement {
+		slices.SortStableFunc(raw, func(x, y rawSet) int {
+			if tx, ty := d.T[x.unit], d.T[y.unit]; tx != ty {
+				return cmp.Compare(ty, tx)
+			}
+			return cmp.Compare(x.unit, y.unit)
+		})
+	}
 	m.Sets = make([]MatchedSet, len(raw))
 	all := make([]int, len(backing))
 	for k, j := range backing {
@@ -753,28 +760,15 @@ func (m *Matching) Balance() *BalanceSheet {
 // are positivity tables as for Scores.Effect.
 func (m *Matching) Effect(cells ...*Cells) *Effect {
 	t := m.Options.withDefaults().Estimand
-	eff := &Effect{Estimator: NearestNeighbourMatching, Estimand: t, SEMethod: "abadie-imbens", Supported: true,
-		Value: math.NaN(), SE: math.NaN(), CI95: Interval{math.NaN(), math.NaN()}, Mu1: math.NaN(), Mu0: math.NaN(),
-		MuCov: [3]float64{math.NaN(), math.NaN(), math.NaN()}, Population: t.population()}
+	eff := newEffect(NearestNeighbourMatching, t, "abadie-imbens")
 	if err := m.Err(); err != nil {
 		eff.err = err
 		return eff
 	}
-	sc := m.Scores
-	d := sc.Design
-	if err := checkCells(d, cells); err != nil {
-		eff.err = err
+	if !eff.begin(m.Scores, cells) {
 		return eff
 	}
-	if d.Y == nil {
-		eff.err = fmt.Errorf("%s: no outcome: set one with .Outcome(\"column\")", NearestNeighbourMatching)
-		return eff
-	}
-	if why := sc.unsupported(t, cells); why != "" {
-		eff.Supported = false
-		eff.Unsupported = why
-		eff.flag("unsupported_estimand", fmt.Sprintf("the data do not support the %s: %s", t, why))
-	}
+	d := m.Scores.Design
 	y := d.Y
 	var s1, s0, nm float64
 	tau := make([]float64, len(m.Sets))
@@ -889,6 +883,34 @@ func (a *armIndex) position(r int32, v float64, s, e int) int {
 		}
 		return a.rows[p] >= r
 	})
+}
+
+// newEffect is an effect of est for t with every number not yet known.
+func newEffect(est Estimator, t Estimand, seMethod string) *Effect {
+	nan := math.NaN()
+	return &Effect{Estimator: est, Estimand: t, SEMethod: seMethod, Supported: true, Value: nan, SE: nan,
+		CI95: Interval{nan, nan}, Mu1: nan, Mu0: nan, MuCov: [3]float64{nan, nan, nan}, Population: t.population()}
+}
+
+// begin checks the positivity tables and the outcome for an estimate on the
+// scores' design and judges whether the data support the estimand; false
+// when the effect cannot be estimated (Err says why).
+func (eff *Effect) begin(sc *Scores, cells []*Cells) bool {
+	d := sc.Design
+	if err := checkCells(d, cells); err != nil {
+		eff.err = err
+		return false
+	}
+	if d.Y == nil {
+		eff.err = fmt.Errorf("%s: no outcome: set one with .Outcome(\"column\")", eff.Estimator)
+		return false
+	}
+	if why := sc.unsupported(eff.Estimand, cells); why != "" {
+		eff.Supported = false
+		eff.Unsupported = why
+		eff.flag("unsupported_estimand", fmt.Sprintf("the data do not support the %s: %s", eff.Estimand, why))
+	}
+	return true
 }
 
 // checkCells checks positivity tables passed to an estimate.

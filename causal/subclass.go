@@ -210,9 +210,7 @@ func (s *Strata) Violations(t Estimand) []int {
 // (weights renormalised), flagged restricted_population and not supported.
 // Cells are positivity tables as for Scores.Effect.
 func (s *Strata) Effect(t Estimand, cells ...*Cells) *Effect {
-	eff := &Effect{Estimator: Subclassification, Estimand: t, SEMethod: "stratified variance", Supported: true,
-		Value: math.NaN(), SE: math.NaN(), CI95: Interval{math.NaN(), math.NaN()}, Mu1: math.NaN(), Mu0: math.NaN(),
-		MuCov: [3]float64{math.NaN(), math.NaN(), math.NaN()}, Population: t.population()}
+	eff := newEffect(Subclassification, t, "stratified variance")
 	if err := s.Err(); err != nil {
 		eff.err = err
 		return eff
@@ -221,20 +219,8 @@ func (s *Strata) Effect(t Estimand, cells ...*Cells) *Effect {
 		eff.err = err
 		return eff
 	}
-	sc := s.Scores
-	d := sc.Design
-	if err := checkCells(d, cells); err != nil {
-		eff.err = err
+	if !eff.begin(s.Scores, cells) {
 		return eff
-	}
-	if d.Y == nil {
-		eff.err = fmt.Errorf("%s: no outcome: set one with .Outcome(\"column\")", Subclassification)
-		return eff
-	}
-	if why := sc.unsupported(t, cells); why != "" {
-		eff.Supported = false
-		eff.Unsupported = why
-		eff.flag("unsupported_estimand", fmt.Sprintf("the data do not support the %s: %s", t, why))
 	}
 	viol := s.Violations(t)
 	bad := map[int]bool{}
