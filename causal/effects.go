@@ -424,7 +424,7 @@ func (eff *Effect) aliasFlags(d *Design, oc *outcomes) {
 func evaluate(sc *Scores, est Estimator, target Estimand, e []float64, oc *outcomes, fw []float64, withSE bool) (estOut, error) {
 	d := sc.Design
 	if est == NearestNeighbourMatching || est == Subclassification {
-		return estOut{}, fmt.Errorf("%s is not resampled or swept: use its own standard error (Scores.Match, Scores.Subclassify); for matching the bootstrap is not valid (Abadie & Imbens 2008)", est)
+		return estOut{}, fmt.Errorf("%s is not resampled by the bootstrap: use its own standard error (Scores.Match, Scores.Subclassify); for matching with replacement the bootstrap is not valid (Abadie & Imbens 2008)", est)
 	}
 	if e == nil {
 		e = sc.E

@@ -87,3 +87,38 @@ func ExampleStrata_Violations() {
 	// scores 0.934 to 0.999: 97 treated, 3 control
 	// ATE: [] ATT: [] ATC: []
 }
+
+func ExampleMatching_UnmatchedMask() {
+	sc := water().Propensity()
+	m := sc.Match(causal.MatchOptions{Caliper: causal.AustinCaliper})
+	lowest := 1.0
+	for i, u := range m.UnmatchedMask(true) {
+		if u && sc.E[i] < lowest {
+			lowest = sc.E[i]
+		}
+	}
+	fmt.Printf("the unmatched treated have scores from %.3f up\n", lowest)
+	// Output:
+	// the unmatched treated have scores from 0.965 up
+}
+
+func ExampleStrata_Balance() {
+	st := water().Propensity().Subclassify(0)
+	b := st.Balance(causal.ATT)
+	fmt.Printf("largest |SMD| %.3f before, %.3f after subclassification (%s)\n", maxAbs(b, false), b.MaxAbsSMD(), b.Label)
+	w := st.Weights(causal.ATT)
+	fmt.Printf("weight of a control in the top stratum: %.2f\n", w[topControl(st)])
+	// Output:
+	// largest |SMD| 0.986 before, 0.372 after subclassification (subclassification weights (ATT))
+	// weight of a control in the top stratum: 2.04
+}
+
+// topControl is the first control in the highest stratum.
+func topControl(st *causal.Strata) int {
+	for i, j := range st.Of {
+		if j == len(st.Strata)-1 && st.Scores.Design.T[i] == 0 {
+			return i
+		}
+	}
+	return -1
+}
