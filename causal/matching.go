@@ -590,17 +590,34 @@ func exactCells(d *Design, names []string) (int, []int32, error) {
 		seen[name] = true
 		cols = append(cols, c)
 	}
+	// Each column's values numbered densely, then the cells numbered by the
+	// tuple of those numbers.
+	codes := make([][]int32, len(cols))
+	for k, c := range cols {
+		codes[k] = make([]int32, d.N)
+		seenV := map[uint64]int32{}
+		for i, r := range d.Rows {
+			v := uint64(0)
+			if c.Kind == Numeric {
+				v = math.Float64bits(c.Num[r])
+			} else {
+				v = uint64(c.Codes[r])
+			}
+			id, ok := seenV[v]
+			if !ok {
+				id = int32(len(seenV))
+				seenV[v] = id
+			}
+			codes[k][i] = id
+		}
+	}
 	ids := map[string]int32{}
 	group := make([]int32, d.N)
-	key := make([]byte, 0, 16*len(cols))
-	for i, r := range d.Rows {
-		key = key[:0]
-		for _, c := range cols {
-			if c.Kind == Numeric {
-				key = fmt.Appendf(key, "%v|", math.Float64bits(c.Num[r]))
-			} else {
-				key = fmt.Appendf(key, "%d|", c.Codes[r])
-			}
+	key := make([]byte, 4*len(cols))
+	for i := range group {
+		for k := range cols {
+			v := codes[k][i]
+			key[4*k], key[4*k+1], key[4*k+2], key[4*k+3] = byte(v), byte(v>>8), byte(v>>16), byte(v>>24)
 		}
 		g, ok := ids[string(key)]
 		if !ok {
