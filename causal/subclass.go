@@ -205,6 +205,10 @@ func (s *Strata) Violations(t Estimand) []int {
 //
 //	τ = Σ_s w_s (ȳ1s − ȳ0s),   Var τ = Σ_s w_s² (s1s²/n1s + s0s²/n0s).
 //
+// The strata, cut on the estimated score, are taken as given, so the SE
+// ignores that the score was estimated (conservative when the covariates
+// predict the outcome: see TestMatchingCoverageRandomised).
+//
 // A stratum the estimand needs with an empty arm (see Violations) is a
 // positivity violation: the effect is then computed over the other strata
 // (weights renormalised), flagged restricted_population and not supported.
