@@ -85,8 +85,12 @@ type Report struct {
 	Cautions       []string `json:"cautions"`
 
 	// Results behind the fields, for views.
-	Study        *Study   `json:"-"`
-	Trimmed      *Trimmed `json:"-"`
+	Study   *Study   `json:"-"`
+	Trimmed *Trimmed `json:"-"`
+	// Matching and Strata behind the nearest_neighbour_matching and
+	// subclassification estimates (nil for the ATO).
+	Matching     *Matching `json:"-"`
+	Strata       *Strata   `json:"-"`
 	trimmedCells []*Cells
 	Options      ReportOptions `json:"-"`
 }
@@ -232,8 +236,9 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	r.Estimates = es.Items
 	if o.Estimand != ATO {
 		// Matching on the logit score and subclassification on its quintiles.
-		extra := []*Effect{est.Match(MatchOptions{Estimand: o.Estimand, Caliper: o.Caliper}).Effect(estCells...),
-			est.Subclassify(0).Effect(o.Estimand, estCells...)}
+		r.Matching = est.Match(MatchOptions{Estimand: o.Estimand, Caliper: o.Caliper})
+		r.Strata = est.Subclassify(0)
+		extra := []*Effect{r.Matching.Effect(estCells...), r.Strata.Effect(o.Estimand, estCells...)}
 		for _, e := range extra {
 			if trim {
 				r.Trimmed.mark(e)

@@ -11,7 +11,8 @@ import (
 // TestReportMatchingEstimates: with --estimand ATT the report's estimates
 // include nearest_neighbour_matching and subclassification, equal to the R
 // script testdata/reference/matching_reference.R (1e-9); --caliper 0.2
-// restricts matching on the water-audit scenario and says so in a flag.
+// restricts matching on the water-audit scenario and says so in a flag, and
+// the HTML report shows the matching and strata views.
 func TestReportMatchingEstimates(t *testing.T) {
 	dir := t.TempDir()
 	js := filepath.Join(dir, "r.json")
@@ -63,12 +64,16 @@ func TestReportMatchingEstimates(t *testing.T) {
 	js2 := filepath.Join(dir, "w.json")
 	r := runCmd(t, "report", "--data", "../../../testdata/water_audits.csv", "--treatment", "audit", "--treated-level", "yes",
 		"--outcome", "litres_per_day", "--covariates", "household_size,lot_m2,home_age,pool,last_summer_lpd",
-		"--estimand", "ATT", "--caliper", "0.2", "--json", js2)
+		"--estimand", "ATT", "--caliper", "0.2", "--json", js2, "--html", filepath.Join(dir, "w.html"))
 	if r.code != 0 {
 		t.Fatalf("exit %d: %s", r.code, r.stderr)
 	}
 	if !strings.Contains(r.stdout, "nearest_neighbour_matching") {
 		t.Errorf("summary lacks the matching estimate:\n%s", r.stdout)
+	}
+	if h, err := os.ReadFile(filepath.Join(dir, "w.html")); err != nil || !strings.Contains(string(h), `data-cp-view="matching"`) ||
+		!strings.Contains(string(h), "Who the unmatched treated units are") || !strings.Contains(string(h), `data-cp-view="strata"`) {
+		t.Errorf("the HTML report lacks the matching and strata views (%v)", err)
 	}
 	for _, e := range validate(t, js2)["estimates"].([]any) {
 		ee := e.(map[string]any)
