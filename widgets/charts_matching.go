@@ -523,7 +523,7 @@ func matchingHeadline(m *causal.Matching) string {
 	} else {
 		var parts []string
 		for _, f := range m.Findings() {
-			parts = append(parts, fmt.Sprintf("%s %s (%s)", formatCount(f.Units), strings.TrimSuffix(armWord(f.Arm), "s")+"s", formatPercent(f.Share)))
+			parts = append(parts, fmt.Sprintf("%s %s (%s)", formatCount(f.Units), armWord(f.Arm), formatPercent(f.Share)))
 		}
 		head += "; " + strings.Join(parts, " and ") + " found none"
 		if o.Caliper > 0 {
