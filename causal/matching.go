@@ -149,7 +149,7 @@ type Matching struct {
 	useQ      []float64 // Σ 1/|set|² over the sets a unit is a match in
 	group     []int32
 	logit     []float64
-	arms      [2]*armIndex
+	arms      [2]*armIndex // nil for an arm not searched
 	balance   *BalanceSheet
 	err       error
 }
@@ -172,51 +172,69 @@ type armIndex struct {
 	rows       []int32
 	val        []float64
 	start, end []int32 // per cell
-	pos        map[int32]int32
 }
 
+// buildArm sorts the rows (in increasing row order, finite logits) by
+// (cell, logit, row): an LSD radix sort on the logit's order-preserving bits
+// (stable, so rows stay in order among equal logits), then a stable
+// counting sort by cell.
 func buildArm(rows []int32, l []float64, group []int32, cells int) *armIndex {
-	type key struct {
-		g int32
-		v float64
-		r int32
-	}
-	ks := make([]key, len(rows))
+	n := len(rows)
+	keys, tk := make([]uint64, n), make([]uint64, n)
+	rs, tr := append([]int32(nil), rows...), make([]int32, n)
 	for k, r := range rows {
-		g := int32(0)
-		if group != nil {
-			g = group[r]
+		b := math.Float64bits(l[r])
+		if b>>63 == 1 {
+			b = ^b
+		} else {
+			b |= 1 << 63
 		}
-		ks[k] = key{g, l[r], r}
+		keys[k] = b
 	}
-	// (No NaN reaches here: plain comparisons.)
-	slices.SortFunc(ks, func(a, b key) int {
-		switch {
-		case a.g != b.g:
-			return int(a.g - b.g)
-		case a.v < b.v:
-			return -1
-		case a.v > b.v:
-			return 1
+	var count [256]int
+	for shift := uint(0); shift < 64; shift += 8 {
+		count = [256]int{}
+		for _, k := range keys {
+			count[(k>>shift)&0xff]++
 		}
-		return int(a.r - b.r)
-	})
-	a := &armIndex{rows: make([]int32, len(ks)), val: make([]float64, len(ks)),
-		start: make([]int32, cells), end: make([]int32, cells)}
-	for c := range a.start {
-		a.start[c], a.end[c] = -1, -1
+		if count[(keys[0]>>shift)&0xff] == n {
+			continue // every key has this byte
+		}
+		sum := 0
+		for b := range count {
+			count[b], sum = sum, sum+count[b]
+		}
+		for k, key := range keys {
+			b := (key >> shift) & 0xff
+			tk[count[b]], tr[count[b]] = key, rs[k]
+			count[b]++
+		}
+		keys, tk = tk, keys
+		rs, tr = tr, rs
 	}
-	for k, x := range ks {
-		a.rows[k], a.val[k] = x.r, x.v
-		if a.start[x.g] < 0 {
-			a.start[x.g] = int32(k)
+	a := &armIndex{rows: rs, val: make([]float64, n), start: make([]int32, cells), end: make([]int32, cells)}
+	if group != nil && cells > 1 {
+		off := make([]int32, cells+1)
+		for _, r := range rs {
+			off[group[r]+1]++
 		}
-		a.end[x.g] = int32(k + 1)
+		for c := 1; c <= cells; c++ {
+			off[c] += off[c-1]
+		}
+		for c := 0; c < cells; c++ {
+			a.start[c], a.end[c] = off[c], off[c+1]
+		}
+		out := make([]int32, n)
+		for _, r := range rs {
+			out[off[group[r]]] = r
+			off[group[r]]++
+		}
+		a.rows = out
+	} else if cells > 0 {
+		a.start[0], a.end[0] = 0, int32(n)
 	}
-	for c := range a.start {
-		if a.start[c] < 0 {
-			a.start[c], a.end[c] = 0, 0
-		}
+	for k, r := range a.rows {
+		a.val[k] = l[r]
 	}
 	return a
 }
@@ -349,9 +367,11 @@ func (sc *Scores) Match(o MatchOptions) *Matching {
 	if o.Caliper > 0 {
 		m.CaliperWidth = o.Caliper * m.LogitSD
 	}
-	for a := 0; a < 2; a++ {
-		m.arms[a] = buildArm(rows[a], m.logit, group, cells)
-		m.arms[a].tol = TieTolerance * m.LogitSD
+	// The arms searched for matches (and, for the variance, for neighbours
+	// of the units used as matches, which are in those arms too).
+	for _, a := range m.targetArms() {
+		m.arms[1-a] = buildArm(rows[1-a], m.logit, group, cells)
+		m.arms[1-a].tol = TieTolerance * m.LogitSD
 	}
 	m.unmatched = make([]bool, n)
 	m.matched = make([]bool, n)
@@ -410,14 +430,17 @@ func (sc *Scores) Match(o MatchOptions) *Matching {
 				backing = alive.take(other, backing, l, s, e, o.K, m.CaliperWidth)
 			}
 			// Drop matches beyond the caliper (they come in order of distance).
-			keep := start
-			for k := start; k < len(backing); k++ {
-				if math.Abs(m.logit[backing[k]]-l) <= m.CaliperWidth {
-					backing[keep] = backing[k]
-					keep++
+			keep := len(backing)
+			if o.Caliper > 0 {
+				keep = start
+				for k := start; k < len(backing); k++ {
+					if math.Abs(m.logit[backing[k]]-l) <= m.CaliperWidth {
+						backing[keep] = backing[k]
+						keep++
+					}
 				}
+				backing = backing[:keep]
 			}
-			backing = backing[:keep]
 			if code == "" && keep == start {
 				code = "beyond_caliper"
 				if alive != nil {
@@ -816,6 +839,7 @@ func (m *Matching) Effect(cells ...*Cells) *Effect {
 	}
 	var v2 float64
 	missing := 0
+	buf := make([]int32, 0, 4*m.Options.K)
 	for j := 0; j < d.N; j++ {
 		mj := 0.0
 		if m.matched[j] {
@@ -825,7 +849,7 @@ func (m *Matching) Effect(cells ...*Cells) *Effect {
 		if c == 0 {
 			continue
 		}
-		s2 := m.withinArmVariance(j)
+		s2 := m.withinArmVariance(j, buf)
 		if math.IsNaN(s2) {
 			missing++
 			continue
@@ -867,20 +891,24 @@ func (m *Matching) Effect(cells ...*Cells) *Effect {
 
 // withinArmVariance is σ̂_j² = J'/(J'+1) (y_j − mean of y over L(j))², L(j)
 // the K nearest other units of j's arm and exact cell (ties included).
-func (m *Matching) withinArmVariance(j int) float64 {
+// buf is scratch space for the neighbours.
+func (m *Matching) withinArmVariance(j int, buf []int32) float64 {
 	d := m.Scores.Design
 	l := m.logit[j]
 	if math.IsInf(l, 0) || math.IsNaN(l) {
 		return math.NaN()
 	}
 	a := m.arms[int(d.T[j])]
+	if a == nil {
+		return math.NaN()
+	}
 	g := int32(0)
 	if m.group != nil {
 		g = m.group[j]
 	}
 	s, e := a.cellRange(g)
 	self := a.position(int32(j), l, s, e)
-	nb, _ := a.nearest(nil, l, s, e, m.Options.withDefaults().K, self)
+	nb, _ := a.nearest(buf[:0], l, s, e, m.Options.K, self)
 	if len(nb) == 0 {
 		return math.NaN()
 	}
