@@ -183,7 +183,7 @@ func buildArm(rows []int32, l []float64, group []int32, cells int) *armIndex {
 	keys, tk := make([]uint64, n), make([]uint64, n)
 	rs, tr := append([]int32(nil), rows...), make([]int32, n)
 	for k, r := range rows {
-		b := math.Float64bits(l[r])
+		b := math.Float64bits(l[r] + 0) // −0 as +0
 		if b>>63 == 1 {
 			b = ^b
 		} else {

@@ -171,3 +171,62 @@ func TestSubclassificationNSWMatchesR(t *testing.T) {
 		}
 	}
 }
+
+// TestBuildArmOrder: the radix sort orders rows by (cell, logit, row) as a
+// comparison sort does, with negative values, duplicates and cells.
+func TestBuildArmOrder(t *testing.T) {
+	const n = 5000
+	l := make([]float64, n)
+	group := make([]int32, n)
+	var rows []int32
+	for i := range l {
+		l[i] = float64((i*7919)%201-100) / 8 // duplicates, negatives, zero
+		if i%3 == 0 {
+			l[i] = -l[i] * 1e-7
+		}
+		switch {
+		case i%97 == 0:
+			l[i] = math.Copysign(0, -1)
+		case i%89 == 0:
+			l[i] = 0
+		}
+		group[i] = int32((i * 31) % 4)
+		if i%5 != 0 {
+			rows = append(rows, int32(i))
+		}
+	}
+	for _, g := range [][]int32{nil, group} {
+		cells := 1
+		if g != nil {
+			cells = 4
+		}
+		a := buildArm(rows, l, g, cells)
+		want := append([]int32(nil), rows...)
+		slices.SortFunc(want, func(x, y int32) int {
+			gx, gy := int32(0), int32(0)
+			if g != nil {
+				gx, gy = g[x], g[y]
+			}
+			switch {
+			case gx != gy:
+				return int(gx - gy)
+			case l[x] < l[y]:
+				return -1
+			case l[x] > l[y]:
+				return 1
+			}
+			return int(x - y)
+		})
+		if !slices.Equal(a.rows, want) {
+			t.Fatalf("cells %d: radix order differs from the comparison sort", cells)
+		}
+		for c := 0; c < cells; c++ {
+			s, e := a.cellRange(int32(c))
+			for k := s; k < e; k++ {
+				if g != nil && g[a.rows[k]] != int32(c) || a.val[k] != l[a.rows[k]] {
+					t.Fatalf("cell %d range [%d, %d) holds row %d", c, s, e, a.rows[k])
+				}
+			}
+		}
+	}
+}
