@@ -802,7 +802,10 @@ func (m *Matching) Balance() *BalanceSheet {
 // Without replacement the same formula is used (each w_j ≤ 1). Cells
 // are positivity tables as for Scores.Effect.
 func (m *Matching) Effect(cells ...*Cells) *Effect {
-	t := m.Options.withDefaults().Estimand
+	t := ATT
+	if m != nil {
+		t = m.Options.withDefaults().Estimand
+	}
 	eff := newEffect(NearestNeighbourMatching, t, "abadie-imbens")
 	if err := m.Err(); err != nil {
 		eff.err = err
@@ -1039,12 +1042,12 @@ func armPlural(a int) string {
 // who the unmatched are, and the effective sample sizes of the matching
 // weights. To re-judge the matched sample, see Balance and Findings.
 func (m *Matching) Remedy() Remedy {
-	r := Remedy{Action: "match", Estimand: m.Options.withDefaults().Estimand.String(), Who: []ProfileRow{},
-		ESSTreated: Num(math.NaN()), ESSControl: Num(math.NaN())}
+	r := Remedy{Action: "match", Who: []ProfileRow{}, ESSTreated: Num(math.NaN()), ESSControl: Num(math.NaN())}
 	if err := m.Err(); err != nil {
 		r.Text = "matching is not possible: " + err.Error()
 		return r
 	}
+	r.Estimand = m.Options.Estimand.String()
 	r.DropsTreated, r.DropsControl = m.UnmatchedTreated, m.UnmatchedControl
 	switch m.Options.Estimand {
 	case ATT:
