@@ -293,9 +293,9 @@ func (a *armIndex) nearest(out []int32, x float64, s, e, k, self int) ([]int32, 
 // |l_i − l_j|. With replacement (the default), each unit the estimand
 // describes (the treated for the ATT, the controls for the ATC, both for the
 // ATE) gets its K nearest units of the other arm, every unit tied with the
-// K-th nearest included and the set averaged (Abadie & Imbens 2006); a
-// search of the other arm sorted by logit (binary search, then outwards)
-// makes it O(n log n). Matches farther than the caliper are dropped; a unit
+// K-th nearest (within TieTolerance·LogitSD) included and the set averaged
+// (Abadie & Imbens 2006); the other arm is radix-sorted by logit once and
+// searched by bisection, then outwards, so matching costs O(n log n). Matches farther than the caliper are dropped; a unit
 // left without any is unmatched. With exact covariates, matches are sought
 // among units agreeing on all of them.
 //
