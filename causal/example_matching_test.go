@@ -122,3 +122,12 @@ func topControl(st *causal.Strata) int {
 	}
 	return -1
 }
+
+func ExampleStrata_Remedy() {
+	r := nsw().Propensity().Subclassify(0).Remedy(causal.ATE)
+	fmt.Println(r.Action, r.Estimand, r.DropsTreated, r.DropsControl)
+	fmt.Println(r.Text)
+	// Output:
+	// subclassify ATE 0 0
+	// estimate the ATE by subclassification on 5 score strata: every stratum holds both arms
+}

@@ -289,6 +289,16 @@ func TestSubclassificationEmptyArm(t *testing.T) {
 	if len(st.Violations(causal.ATT)) != treatedOnly || len(st.Violations(causal.ATC)) != controlOnly {
 		t.Errorf("violations ATT %v ATC %v", st.Violations(causal.ATT), st.Violations(causal.ATC))
 	}
+	for _, target := range []causal.Estimand{causal.ATE, causal.ATT} {
+		units := 0
+		for _, j := range st.Violations(target) {
+			units += st.Strata[j].Treated + st.Strata[j].Control
+		}
+		r := st.Remedy(target)
+		if r.Action != "subclassify" || r.DropsTreated+r.DropsControl != units || len(r.Who) == 0 || !strings.Contains(r.Text, "left out") {
+			t.Errorf("%s remedy %+v: want the %d units of the violating strata", target, r, units)
+		}
+	}
 	if err := sc.Subclassify(1).Err(); err == nil || !strings.Contains(err.Error(), "1 strata") {
 		t.Errorf("1 stratum: %v", err)
 	}

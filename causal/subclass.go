@@ -325,6 +325,56 @@ func (s *Strata) Balance(t Estimand) *BalanceSheet {
 	return balanceFor(s.Scores.Design, s.Weights(t), "subclassification weights ("+t.String()+")")
 }
 
+// Remedy describes subclassification as a remedy for the verdict (action
+// "subclassify") for the estimand: the units in strata it cannot use (an
+// arm the estimand needs is empty there; DropsTreated, DropsControl), who
+// they are, the units in strata the estimand does not describe
+// (Unrepresented: for the ATT, controls in strata without treated units),
+// and the effective sample sizes of the subclassification weights.
+func (s *Strata) Remedy(t Estimand) Remedy {
+	r := Remedy{Action: "subclassify", Estimand: t.String(), Who: []ProfileRow{}, ESSTreated: Num(math.NaN()), ESSControl: Num(math.NaN())}
+	if err := s.Err(); err != nil {
+		r.Text = "subclassification is not possible: " + err.Error()
+		return r
+	}
+	d := s.Scores.Design
+	w := s.Weights(t)
+	bad := map[int]bool{}
+	for _, j := range s.Violations(t) {
+		bad[j] = true
+	}
+	drop := make([]bool, d.N)
+	var sw, sq [2]float64
+	for i, v := range w {
+		a := int(d.T[i])
+		sw[a], sq[a] = sw[a]+v, sq[a]+v*v
+		switch {
+		case bad[s.Of[i]]:
+			drop[i] = true
+			if a == 1 {
+				r.DropsTreated++
+			} else {
+				r.DropsControl++
+			}
+		case v == 0:
+			r.Unrepresented++ // in a stratum without the estimand's arm: not described by it
+		}
+	}
+	r.ESSTreated, r.ESSControl = Num(kish(sw[1], sq[1])), Num(kish(sw[0], sq[0]))
+	r.Text = fmt.Sprintf("estimate the %s by subclassification on %d score strata", t, len(s.Strata))
+	if v := s.Violations(t); len(v) > 0 {
+		r.Text += fmt.Sprintf(": %d stratum(s) lack an arm the %s needs, so %d treated and %d controls there are left out and the estimand becomes the other strata",
+			len(v), t, r.DropsTreated, r.DropsControl)
+		if k := countMask(drop); k > 0 && k < d.N {
+			r.Who = cleanProfile(profile(d, drop))
+			r.WhoText = whoText(r.Who, fmt.Sprintf("the %d units left out", k))
+		}
+	} else {
+		r.Text += ": every stratum holds both arms"
+	}
+	return r
+}
+
 // String is the terminal view.
 func (s *Strata) String() string {
 	if err := s.Err(); err != nil {
