@@ -28,7 +28,7 @@ func ExampleScores_Match_caliper() {
 	// Output:
 	// matching for the ATT: 48 of 1048 treated units (4.6%) found no comparable unit of the other arm (48 with no unit of the other arm within the caliper)
 	// the 48 unmatched treated units differ from the other units most in last_summer_lpd (mean 1291.27 vs 661.535, SMD +2.24), lot_m2 (mean 1741.08 vs 718.822, SMD +2.01), pool=yes (mean 0.895833 vs 0.255, SMD +1.70)
-	// largest |SMD| after matching 0.168
+	// largest |SMD| after matching 0.211
 }
 
 func ExampleScores_Match_withoutReplacement() {
@@ -109,7 +109,7 @@ func ExampleStrata_Balance() {
 	w := st.Weights(causal.ATT)
 	fmt.Printf("weight of a control in the top stratum: %.2f\n", w[topControl(st)])
 	// Output:
-	// largest |SMD| 0.986 before, 0.372 after subclassification (subclassification weights (ATT))
+	// largest |SMD| 0.986 before, 0.440 after subclassification (subclassification weights (ATT))
 	// weight of a control in the top stratum: 2.04
 }
 

@@ -27,7 +27,7 @@ func ExampleMatchedPairs() {
 	fmt.Println(strings.Contains(widgets.HTML(m), widgets.ChartMarker))
 	// Output:
 	// Matched sets on the logit score (ATT)
-	// Matching for the ATT matched 1,000 of 1,048 units; 48 treated units (4.6%) found none within the caliper: they lack support, and the estimate describes the matched units only; largest |SMD| after matching 0.168.
+	// Matching for the ATT matched 1,000 of 1,048 units; 48 treated units (4.6%) found none within the caliper: they lack support, and the estimate describes the matched units only; largest |SMD| after matching 0.211.
 	// true
 }
 

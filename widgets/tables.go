@@ -572,8 +572,8 @@ func weightsTable(w *causal.Weights) table {
 		notes = append(notes, fmt.Sprintf("%s units have weight 0 and drop out.", formatCount(w.Zero)))
 	}
 	if tr := w.Truncation; tr != nil {
-		notes = append(notes, fmt.Sprintf("Truncated within each arm at percentiles %s and %s: %s weights moved (treated to [%s, %s], control to [%s, %s]).",
-			formatNumber(tr.LoPercentile), formatNumber(tr.HiPercentile), formatCount(tr.Changed),
+		notes = append(notes, fmt.Sprintf("%s: %s weights moved (treated to [%s, %s], control to [%s, %s]).",
+			capitalize(tr.Description()), formatCount(tr.Changed),
 			formatNumber(tr.Treated.Lo), formatNumber(tr.Treated.Hi), formatNumber(tr.Control.Lo), formatNumber(tr.Control.Hi)))
 	}
 	t.Note = strings.Join(notes, " ")

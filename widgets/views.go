@@ -197,6 +197,7 @@ func scoresParts(s *causal.Scores) []string {
 		separationHTML(s),
 		chartPart(CalibrationPlot(s)),
 		notePart("Each point is a tenth of the units, grouped by fitted score. Points near the diagonal: the scores match how often units are treated; a systematic bend suggests the model's form misses part of how treatment depends on the covariates."),
+		calibrationTable(s).HTML(),
 		termsTable(s).HTML(),
 	}
 }
@@ -326,7 +327,7 @@ func extrapolationParts(a *causal.ExtrapolationAudit) []string {
 			parts = append(parts, chartPart(ExtrapolationPlot(c)), notePart(heldNote(c)))
 		}
 	}
-	parts = append(parts, extrapolationTable(a).HTML())
+	parts = append(parts, extrapolationTable(a).HTML(), notePart("Unsupported: outside the fitting arm's range on a term, or "+causal.LeverageRule+"."))
 	if tr := termRangesTable(a); len(tr.Rows) > 0 {
 		parts = append(parts, tr.HTML())
 	}

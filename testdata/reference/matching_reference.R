@@ -96,17 +96,20 @@ matching <- function(estimand, K) {
 }
 runs <- list(matching("ATT", 1), matching("ATC", 1), matching("ATE", 1), matching("ATT", 3))
 
-# Balance after matching (ATT, K = 1): SMD of each covariate with the matching weights, the weighted
-# means sum(w x)/sum(w) and weighted variances sum(w (x - m)^2)/(sum(w) - sum(w^2)/sum(w)) (Austin &
-# Stuart 2015); 0/1 covariates use p(1 - p) of the weighted proportions.
+# Balance after matching (ATT, K = 1): SMD of each covariate with the matching weights: weighted means
+# sum(w x)/sum(w) over the unweighted pooled SD sqrt((s1^2 + s0^2)/2) of the data before matching (n - 1
+# variances; p(1 - p) of the unweighted proportions for 0/1 covariates), the same denominator before and
+# after (Rosenbaum & Rubin 1985; Stuart 2010).
 att <- runs[[1]]
 smd_w <- vapply(covs, function(cn) {
   x <- d[[cn]]; wt <- att$weights
-  mv <- function(s) { ww <- wt[s]; xx <- x[s]; m <- sum(ww * xx) / sum(ww)
-    c(m, sum(ww * (xx - m)^2) / (sum(ww) - sum(ww^2) / sum(ww))) }
-  a <- mv(Tr == 1); b <- mv(Tr == 0)
-  if (all(x %in% c(0, 1))) { a[2] <- a[1] * (1 - a[1]); b[2] <- b[1] * (1 - b[1]) }
-  (a[1] - b[1]) / sqrt((a[2] + b[2]) / 2)
+  m1 <- sum(wt[Tr == 1] * x[Tr == 1]) / sum(wt[Tr == 1]); m0 <- sum(wt[Tr == 0] * x[Tr == 0]) / sum(wt[Tr == 0])
+  if (all(x %in% c(0, 1))) {
+    p1 <- mean(x[Tr == 1]); p0 <- mean(x[Tr == 0]); v1 <- p1 * (1 - p1); v0 <- p0 * (1 - p0)
+  } else {
+    v1 <- var(x[Tr == 1]); v0 <- var(x[Tr == 0])
+  }
+  (m1 - m0) / sqrt((v1 + v0) / 2)
 }, 0)
 
 # ---------------------------------------------------------------------------------------------
