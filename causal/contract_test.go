@@ -34,7 +34,7 @@ func TestFailedChainCarriesOriginalError(t *testing.T) {
 	results := map[string]any{
 		"Study": s, "Scores": sc, "Support": sc.Support(), "Weights": sc.Weights(ATE), "Balance": sc.Weights(ATE).Balance(),
 		"Estimates": es, "Effect": got, "Trimmed": sc.Trim(Symmetric(0.1)), "Bootstrap": sc.Bootstrap(context.Background(), AIPW, ATE, BootstrapOptions{Replicates: 10}),
-		"Cells": s.Cells("x"), "Sweep": sc.Sweep(AIPW, ATE, 0.05), "Extrapolation": sc.Extrapolation(ATE), "Report": &Report{},
+		"Cells": s.Cells("x"), "Matching": sc.Match(MatchOptions{Estimand: ATT}), "Strata": sc.Subclassify(0), "Calibration": sc.CalibrationTest(), "Sweep": sc.Sweep(AIPW, ATE, 0.05), "Extrapolation": sc.Extrapolation(ATE), "Report": &Report{},
 	}
 	for name, r := range results {
 		b, err := json.Marshal(r)

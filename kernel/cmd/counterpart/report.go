@@ -34,6 +34,7 @@ func reportCommand() *command {
 		treatedLevel := fs.String("treated-level", "", "the treatment value that means treated (when it is not 0/1 or true/false)")
 		estimand := fs.String("estimand", "ATE", "target estimand: ATE, ATT or ATO")
 		trim := fs.String("trim", "none", "trimming before estimation: none, a symmetric α such as 0.1 (scores kept in [α, 1−α]), or optimal (Crump et al. 2009)")
+		caliper := fs.String("caliper", "0", "caliper of the nearest_neighbour_matching estimate in SDs of the logit score (0: none; 0.2 is Austin 2011's advice)")
 		boot := decimalFlag(fs, "bootstrap", 0, "bootstrap replicates for the primary estimator (0: none; else 2 to 100000)")
 		seed := decimalFlag(fs, "seed", 1, "seed of the bootstrap (a whole number, 0 to 2^64-1)")
 		jsonOut := fs.String("json", "", "write the report JSON to FILE, or - for stdout")
@@ -71,6 +72,10 @@ func reportCommand() *command {
 		if *boot == 1 || *boot > maxBootstrap {
 			return fmt.Errorf("--bootstrap %d: use 0 (none) or 2 to %d replicates (1000 or more for percentile intervals)", *boot, maxBootstrap)
 		}
+		cal, err := caliperValue(*caliper)
+		if err != nil {
+			return err
+		}
 		covs, err := covariateList(*covariates)
 		if err != nil {
 			return err
@@ -83,7 +88,7 @@ func reportCommand() *command {
 		}
 		ctx, stop := signalContext()
 		defer stop()
-		opts := causal.ReportOptions{Estimand: est, Trim: *trim, Bootstrap: int(*boot), Seed: *seed, Context: ctx}
+		opts := causal.ReportOptions{Estimand: est, Trim: *trim, Caliper: cal, Bootstrap: int(*boot), Seed: *seed, Context: ctx}
 		if *boot > 0 {
 			update, finish := kernel.Progress("bootstrap")
 			opts.Progress = update

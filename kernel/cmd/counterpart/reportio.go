@@ -51,6 +51,15 @@ func decimalFlag(fs *flag.FlagSet, name string, def uint64, usage string) *uint6
 	return &v
 }
 
+// caliperValue reads --caliper: a decimal number of SDs, 0 for none.
+func caliperValue(s string) (float64, error) {
+	v, err := strconv.ParseFloat(s, 64)
+	if err != nil || strings.TrimLeft(s, "0123456789.") != "" || strings.Count(s, ".") > 1 {
+		return 0, fmt.Errorf("--caliper %q: use 0 (none) or a positive number of SDs of the logit score written in decimal, e.g. 0.2", s)
+	}
+	return v, nil
+}
+
 // covariateList splits --covariates, refusing empty names (", ," would
 // otherwise run unadjusted) and names given twice.
 func covariateList(s string) ([]string, error) {
