@@ -481,7 +481,9 @@ func hashFiles(files []modzip.File) (string, error) {
 	return hex.EncodeToString(h.Sum(nil)), nil
 }
 
-func writeFileAtomic(path string, data []byte) error { return kernel.WriteFileAtomic(path, data, 0o644) }
+func writeFileAtomic(path string, data []byte) error {
+	return kernel.WriteFileAtomic(path, data, 0o644)
+}
 
 func sha256File(p string) (string, int64, error) {
 	f, err := os.Open(p)
