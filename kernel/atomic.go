@@ -22,16 +22,28 @@ func WriteFileAtomic(path string, data []byte, perm os.FileMode) error {
 // together keeps a failure or an interrupt from replacing some outputs and
 // not others.
 type StagedFile struct {
-	Path string // the target
-	tmp  string
+	Path   string // the target
+	tmp    string
+	direct []byte // for a target that is not a regular file: written on Commit
 }
 
 // StageFile writes data to a temporary file in path's folder and syncs it to
-// disk. The folder must exist; a path that is a folder is refused. On
+// disk. The folder must exist; a path that is a folder is refused. A link is
+// followed (the file it points to is replaced, the link kept). A target that
+// exists but is not a regular file (a device such as /dev/null or
+// /dev/stdout, a named pipe) is not replaced: Commit writes data to it. On
 // failure nothing is left behind.
 func StageFile(path string, data []byte, perm os.FileMode) (_ *StagedFile, err error) {
-	if fi, err := os.Stat(path); err == nil && fi.IsDir() {
-		return nil, fmt.Errorf("%s is a folder, not a file", path)
+	if fi, err := os.Stat(path); err == nil {
+		switch {
+		case fi.IsDir():
+			return nil, fmt.Errorf("%s is a folder, not a file", path)
+		case !fi.Mode().IsRegular():
+			return &StagedFile{Path: path, direct: data}, nil
+		}
+		if real, err := filepath.EvalSymlinks(path); err == nil {
+			path = real
+		}
 	}
 	f, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".*.tmp")
 	if err != nil {
@@ -62,6 +74,17 @@ func StageFile(path string, data []byte, perm os.FileMode) (_ *StagedFile, err e
 // effort: not every file system syncs folders). On failure the temporary
 // file is removed and the target left as it was.
 func (s *StagedFile) Commit() error {
+	if s.direct != nil {
+		f, err := os.OpenFile(s.Path, os.O_WRONLY, 0)
+		if err != nil {
+			return err
+		}
+		if _, err := f.Write(s.direct); err != nil {
+			f.Close()
+			return err
+		}
+		return f.Close()
+	}
 	if err := os.Rename(s.tmp, s.Path); err != nil {
 		os.Remove(s.tmp)
 		return err
@@ -75,7 +98,7 @@ func (s *StagedFile) Commit() error {
 
 // Discard removes the staged file; the target is left as it was.
 func (s *StagedFile) Discard() {
-	if s != nil {
+	if s != nil && s.tmp != "" {
 		os.Remove(s.tmp)
 	}
 }

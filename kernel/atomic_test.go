@@ -4,6 +4,7 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"syscall"
 	"testing"
 )
 
@@ -97,5 +98,50 @@ func TestTerminalSafe(t *testing.T) {
 		if got := TerminalSafe(in); got != want {
 			t.Errorf("TerminalSafe(%q) = %q, want %q", in, got, want)
 		}
+	}
+}
+
+// A link is followed, not replaced; a device or named pipe is written to,
+// never replaced by a regular file.
+func TestWriteFileAtomicLinksAndDevices(t *testing.T) {
+	dir := t.TempDir()
+	real := filepath.Join(dir, "real.json")
+	os.WriteFile(real, []byte("old"), 0o644)
+	link := filepath.Join(dir, "link.json")
+	if err := os.Symlink(real, link); err != nil {
+		t.Fatal(err)
+	}
+	if err := WriteFileAtomic(link, []byte("new"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if fi, _ := os.Lstat(link); fi.Mode()&os.ModeSymlink == 0 {
+		t.Error("the link was replaced by a file")
+	}
+	if b, _ := os.ReadFile(real); string(b) != "new" {
+		t.Errorf("the linked file holds %q", b)
+	}
+	fifo := filepath.Join(dir, "pipe")
+	if err := syscall.Mkfifo(fifo, 0o644); err != nil {
+		t.Skip("no named pipes here:", err)
+	}
+	got := make(chan string, 1)
+	go func() {
+		b, _ := os.ReadFile(fifo)
+		got <- string(b)
+	}()
+	if err := WriteFileAtomic(fifo, []byte("through the pipe"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if s := <-got; s != "through the pipe" {
+		t.Errorf("read %q from the pipe", s)
+	}
+	if fi, _ := os.Lstat(fifo); fi.Mode()&os.ModeNamedPipe == 0 {
+		t.Error("the named pipe was replaced by a file")
+	}
+	if err := WriteFileAtomic(os.DevNull, []byte("discarded"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if fi, _ := os.Stat(os.DevNull); fi.Mode().IsRegular() {
+		t.Fatal(os.DevNull + " became a regular file")
 	}
 }
