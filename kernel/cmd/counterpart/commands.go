@@ -106,7 +106,7 @@ func runCommand() *command {
 		html := fs.String("html", "", "write the executed notebook as a self-contained HTML page to this file")
 		executed := fs.String("executed", "", "also keep the executed notebook (.ipynb) at this path")
 		name := fs.String("kernel", jupyter.DefaultKernelName, "kernelspec to execute with")
-		timeout := fs.Int("timeout", 900, "seconds allowed per cell (the first cell compiles the imports)")
+		timeout := decimalFlag(fs, "timeout", 900, "seconds allowed per cell, 1 to 604800 (the first cell compiles the imports)")
 		pos, err := parse(c, fs, args)
 		if err != nil {
 			return err
@@ -114,8 +114,8 @@ func runCommand() *command {
 		if len(pos) != 1 {
 			return fmt.Errorf("run needs exactly one NOTEBOOK, got %d (see: counterpart run --help)", len(pos))
 		}
-		if *timeout <= 0 {
-			return fmt.Errorf("--timeout must be a positive number of seconds, got %d", *timeout)
+		if *timeout == 0 || *timeout > 604800 {
+			return fmt.Errorf("--timeout %d: use 1 to 604800 seconds (a week)", *timeout)
 		}
 		ctx, stop := signalContext()
 		defer stop()

@@ -264,3 +264,27 @@ func TestReportWritesFailedBootstrap(t *testing.T) {
 		t.Errorf("the rest of the report is missing")
 	}
 }
+
+// `counterpart run` checks its flags and refuses outputs on the notebook
+// before it looks for Jupyter.
+func TestRunRefusesBadFlagValues(t *testing.T) {
+	nb := writeCSV(t, "nb.ipynb", `{"cells":[]}`)
+	for _, c := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"run", nb, "--timeout", "0x10"}, `"0x10" for flag --timeout`},
+		{[]string{"run", nb, "--timeout", "0"}, "--timeout 0: use 1 to 604800"},
+		{[]string{"run", nb, "--html", nb}, "--html " + nb + " is the notebook itself"},
+		{[]string{"run", nb, "--executed", filepath.Join(filepath.Dir(nb), ".", "nb.ipynb")}, "is the notebook itself"},
+		{[]string{"run", nb, "--html", nb + ".html", "--executed", nb + ".html"}, "--html and --executed are the same file"},
+	} {
+		r := runCmd(t, c.args...)
+		if r.code != 1 || !strings.Contains(r.stderr, c.want) {
+			t.Errorf("%v: exit %d, stderr %q; want 1 and %q", c.args, r.code, r.stderr, c.want)
+		}
+	}
+	if b, _ := os.ReadFile(nb); string(b) != `{"cells":[]}` {
+		t.Errorf("the notebook changed: %s", b)
+	}
+}
