@@ -174,3 +174,15 @@ func TestParseTrimDecimalOnly(t *testing.T) {
 		}
 	}
 }
+
+// Cells that fail are noted in the verdict, which did not judge them (the
+// report keeps them as a failed part); cells that worked add no note.
+func TestFailedCellsNotedInVerdict(t *testing.T) {
+	v := &Verdict{}
+	noteFailedCells(v, &Cells{Columns: []string{"district", "pool"}, err: errors.New("too many levels")})
+	noteFailedCells(v, &Cells{Columns: []string{"x"}})
+	noteFailedCells(v, nil)
+	if len(v.Notes) != 1 || !strings.Contains(v.Notes[0], "district, pool could not be built (too many levels)") {
+		t.Errorf("notes %q", v.Notes)
+	}
+}
