@@ -180,7 +180,11 @@ func TestParseTrimDecimalOnly(t *testing.T) {
 func TestFailedCellsNotedInVerdict(t *testing.T) {
 	v := &Verdict{}
 	noteFailedCells(v, &Cells{Columns: []string{"district", "pool"}, err: errors.New("too many levels")})
-	noteFailedCells(v, &Cells{Columns: []string{"x"}})
+	ok := FromColumns([]string{"x", "t"}, map[string][]float64{"x": {0, 1, 0, 1, 1, 0}, "t": {0, 1, 0, 1, 0, 1}}, nil).Treat("t").Adjust("x").Cells("x")
+	if ok.Err() != nil {
+		t.Fatal(ok.Err())
+	}
+	noteFailedCells(v, ok)
 	noteFailedCells(v, nil)
 	if len(v.Notes) != 1 || !strings.Contains(v.Notes[0], "district, pool could not be built (too many levels)") {
 		t.Errorf("notes %q", v.Notes)
