@@ -190,3 +190,17 @@ func TestFailedCellsNotedInVerdict(t *testing.T) {
 		t.Errorf("notes %q", v.Notes)
 	}
 }
+
+// A cancelled context stops the report between stages with its error.
+func TestReportCancelledBetweenStages(t *testing.T) {
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	s := FromColumns([]string{"x", "t", "y"}, map[string][]float64{"x": {1, 2, 3, 4, 5, 6, 7, 8}, "t": {0, 1, 0, 1, 1, 0, 1, 0}, "y": {1, 3, 2, 5, 4, 6, 1, 1}}, nil).
+		Treat("t").Outcome("y").Adjust("x")
+	if r, err := BuildReport(s, ReportOptions{Context: ctx, Bootstrap: 10}); !errors.Is(err, context.Canceled) || r != nil {
+		t.Errorf("cancelled report: %v, %v", r, err)
+	}
+	if _, err := BuildReport(s, ReportOptions{Context: context.Background()}); err != nil {
+		t.Errorf("report: %v", err)
+	}
+}

@@ -35,7 +35,9 @@ type ReportOptions struct {
 	// Bootstrap replicates for the primary estimator (0: none) and the seed.
 	Bootstrap int
 	Seed      uint64
-	// Context cancels the bootstrap; Progress reports its replicates.
+	// Context cancels the report: between its stages (BuildReport then
+	// returns the context's error) and within the bootstrap (which stops
+	// early, marked Partial). Progress reports the bootstrap's replicates.
 	Context  context.Context
 	Progress func(done, total int)
 }
@@ -162,11 +164,17 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	if d.Y == nil {
 		return nil, settingErr("Outcome", "column", "no outcome column: name one with ", "")
 	}
+	if err := cancelled(o.Context); err != nil {
+		return nil, err
+	}
 	sc := s.Propensity()
 	if err := sc.Err(); err != nil {
 		return nil, err
 	}
 	r := &Report{Schema: ReportSchema, Study: s, Options: o, Cautions: append([]string(nil), Cautions...)}
+	if err := cancelled(o.Context); err != nil {
+		return nil, err
+	}
 	r.Data = ReportData{Rows: d.RowsTotal, RowsUsed: d.N, RowsDropped: d.RowsDropped, Treated: d.Treated, Control: d.Control}
 	r.Roles = d.Roles()
 	r.Propensity = sc
@@ -218,6 +226,9 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		}
 		noteFailedCells(r.VerdictTrimmed, c)
 	}
+	if err := cancelled(o.Context); err != nil {
+		return nil, err
+	}
 	w := est.Weights(o.Estimand)
 	if err := w.Err(); err != nil {
 		// Weights cannot be formed (e.g. scores of 0 or 1 for an estimand
@@ -231,6 +242,9 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	estCells := cells
 	if trim {
 		estCells = r.trimmedCells
+	}
+	if err := cancelled(o.Context); err != nil {
+		return nil, err
 	}
 	es := est.Effects(o.Estimand, estCells...)
 	if err := es.Err(); err != nil {
@@ -249,6 +263,9 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		}
 		r.Estimates = append(r.Estimates, extra...)
 	}
+	if err := cancelled(o.Context); err != nil {
+		return nil, err
+	}
 	if o.Bootstrap > 0 {
 		ctx := o.Context
 		if ctx == nil {
@@ -266,6 +283,14 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		r.Bootstrap = est.Bootstrap(ctx, primary, o.Estimand, BootstrapOptions{Replicates: o.Bootstrap, Seed: o.Seed, Progress: o.Progress})
 	}
 	return r, nil
+}
+
+// cancelled returns the error of a cancelled context (nil for none).
+func cancelled(ctx context.Context) error {
+	if ctx == nil || ctx.Err() == nil {
+		return nil
+	}
+	return fmt.Errorf("report cancelled: %w", ctx.Err())
 }
 
 // noteFailedCells adds to v a note that the positivity cells c failed and
