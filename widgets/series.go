@@ -422,7 +422,16 @@ func (c sheetColumn) cellText(i int) string {
 	if c.isInt && math.Abs(v) < 1e15 {
 		return formatCount(int(v))
 	}
-	return formatNumber(v)
+	return trimZeros(formatNumber(v))
+}
+
+// trimZeros drops the trailing zeros of a decimal fraction ("0.01000" is
+// "0.01", "2.000" is "2"); a grid value then reads as it was typed.
+func trimZeros(s string) string {
+	if !strings.Contains(s, ".") || strings.ContainsAny(s, "eE") {
+		return s
+	}
+	return strings.TrimSuffix(strings.TrimRight(s, "0"), ".")
 }
 
 // csvText formats a value for the CSV file: every digit, no separators,

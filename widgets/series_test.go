@@ -102,7 +102,7 @@ func TestSeriesReadsStructFields(t *testing.T) {
 		t.Errorf("String and bool values: %v %v", got.Columns[5].Values, got.Columns[7].Values)
 	}
 	text := s.String()
-	for _, w := range []string{"dims", "true_share", "0.1250", "three", "ATO", "—", "left out: nested"} {
+	for _, w := range []string{"dims", "true_share", "0.125", "three", "ATO", "—", "left out: nested"} {
 		if !strings.Contains(text, w) {
 			t.Errorf("String lacks %q:\n%s", w, text)
 		}
