@@ -35,8 +35,10 @@ import (
 const maxSamples = 100_000
 
 // sampleSeed derives the seed of sample k from the grid's seed with the
-// SplitMix64 finaliser (Steele, Lea & Flood 2014), so neighbouring k give
-// unrelated seeds.
+// SplitMix64 finaliser (Steele, Lea & Flood 2014, "Fast splittable
+// pseudorandom number generators", OOPSLA; the constants are those of
+// Vigna's public-domain splitmix64.c, recalled from memory), so
+// neighbouring k give unrelated seeds.
 func sampleSeed(seed uint64, k int) uint64 {
 	z := seed + 0x9e3779b97f4a7c15*uint64(k+1)
 	z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9
