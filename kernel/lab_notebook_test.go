@@ -1,6 +1,7 @@
 package kernel_test
 
 import (
+	"context"
 	"encoding/json"
 	"fmt"
 	"os"
@@ -8,6 +9,7 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+	"time"
 )
 
 // notebookCell is the part of a notebook cell the lab checks read.
@@ -107,8 +109,18 @@ func TestLabNotebookCellsRun(t *testing.T) {
 		t.Fatal(err)
 	}
 	page := filepath.Join(t.TempDir(), "lab.html")
-	cmd := exec.Command("go", "run", "./"+filepath.ToSlash(dir))
-	cmd.Env = append(os.Environ(), "COUNTERPART_HTML="+page, "COUNTERPART_ECHARTS="+filepath.Join(t.TempDir(), "none.js"))
+	ctx, cancel := context.WithTimeout(context.Background(), 5*time.Minute)
+	defer cancel()
+	cmd := exec.CommandContext(ctx, "go", "run", "./"+filepath.ToSlash(dir))
+	// Outside a notebook: without GoNB's variables (a test of Show may have
+	// set them in this process), which would make the program wait for a kernel.
+	var env []string
+	for _, kv := range os.Environ() {
+		if !strings.HasPrefix(kv, "GONB_") {
+			env = append(env, kv)
+		}
+	}
+	cmd.Env = append(env, "COUNTERPART_HTML="+page, "COUNTERPART_ECHARTS="+filepath.Join(t.TempDir(), "none.js"))
 	out, err := cmd.CombinedOutput()
 	t.Logf("output of the lab's cells:\n%s", out)
 	if err != nil {
@@ -145,7 +157,9 @@ func TestLabNotebookCellsRun(t *testing.T) {
 	if err := os.WriteFile(filepath.Join(hdir, "main.go"), []byte(hsrc), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	if out, err := exec.Command("go", "vet", "./"+filepath.ToSlash(hdir)).CombinedOutput(); err != nil {
+	vet := exec.CommandContext(ctx, "go", "vet", "./"+filepath.ToSlash(hdir))
+	vet.Env = env
+	if out, err := vet.CombinedOutput(); err != nil {
 		t.Errorf("the student copy of the lab does not compile: %v\n%s", err, out)
 	}
 }
