@@ -92,7 +92,7 @@ func parse(c *command, fs *flag.FlagSet, args []string) ([]string, error) {
 				printUsage(os.Stdout, c, fs)
 				return nil, errHelp
 			}
-			// The flag package writes one dash; the help shows two.
+			// The flag package writes one dash; usage lines and messages write two.
 			msg := strings.Replace(strings.Replace(err.Error(), "flag -", "flag --", 1), "defined: -", "defined: --", 1)
 			return nil, fmt.Errorf("%s (see: counterpart %s --help)", msg, c.name)
 		}
