@@ -175,7 +175,7 @@ func FuzzReportOptions(f *testing.F) {
 			safeMessage(t, "study", err)
 			return
 		}
-		if v, k := parseNumber(strings.TrimSpace(treated)); k != numOK || v != 2 && v != 5 {
+		if v, k := parseNumber(treated); k != numOK || v != 2 && v != 5 {
 			t.Fatalf("treated level %q accepted", treated)
 		}
 		if d.Treated+d.Control != 8 {

@@ -301,9 +301,9 @@ func TestWideDesignStaysFast(t *testing.T) {
 // under the data-file grammar ("1abc" is not 1).
 func TestTreatedLevelIsANumber(t *testing.T) {
 	s := studyFrom(t, "x,t\n1,2\n2,5\n3,2\n4,5\n5,2\n")
-	wantErr(t, s.Treat("t").TreatedLevel("5abc").Adjust("x").Err(), `treated level "5abc" is not one of`)
-	wantErr(t, s.Treat("t").TreatedLevel("0x5").Adjust("x").Err(), `treated level "0x5" is not one of`)
-	if d, err := s.Treat("t").TreatedLevel(" 5.0 ").Adjust("x").Design(); err != nil || d.Treated != 2 {
+	wantErr(t, s.Treat("t").TreatedLevel("5abc").Adjust("x").Err(), `TreatedLevel("5abc") names a value it does not have`)
+	wantErr(t, s.Treat("t").TreatedLevel("0x5").Adjust("x").Err(), `TreatedLevel("0x5") names a value it does not have`)
+	if d, err := s.Treat("t").TreatedLevel("5.0").Adjust("x").Design(); err != nil || d.Treated != 2 {
 		t.Errorf("5.0: %v", err)
 	}
 }

@@ -84,6 +84,17 @@ const (
 	// means of every model covariate are equal in the two arms exactly.
 	// SE: stacked-equation sandwich.
 	OverlapWeighted
+
+	// NearestNeighbourMatching is 1:1 matching on the logit of the score,
+	// with replacement, no caliper (Abadie & Imbens 2006 estimator and
+	// variance; formula at Matching.Effect). Scores.Match offers K, a
+	// caliper, exact covariates and matching without replacement.
+	NearestNeighbourMatching
+
+	// Subclassification averages within-stratum differences in means over
+	// five strata at the quintiles of the score (Rosenbaum & Rubin 1984;
+	// formula at Strata.Effect). Scores.Subclassify chooses the number.
+	Subclassification
 )
 
 var estimatorIDs = map[Estimator]string{
@@ -93,6 +104,9 @@ var estimatorIDs = map[Estimator]string{
 	IPWNormalized:        "ipw_normalized",
 	AIPW:                 "aipw",
 	OverlapWeighted:      "overlap_weighted",
+
+	NearestNeighbourMatching: "nearest_neighbour_matching",
+	Subclassification:        "subclassification",
 }
 
 // AllEstimators lists the estimators in report order.
@@ -116,13 +130,13 @@ func ParseEstimator(id string) (Estimator, error) {
 			return e, nil
 		}
 	}
-	return 0, fmt.Errorf("unknown estimator %q: use one of difference_in_means, regression_adjustment, ipw, ipw_normalized, aipw, overlap_weighted", id)
+	return 0, fmt.Errorf("unknown estimator %q: use one of difference_in_means, regression_adjustment, ipw, ipw_normalized, aipw, overlap_weighted, nearest_neighbour_matching, subclassification", id)
 }
 
 // Estimands lists the estimands the estimator targets.
 func (e Estimator) Estimands() []Estimand {
 	switch e {
-	case DifferenceInMeans, RegressionAdjustment, IPW, IPWNormalized, AIPW:
+	case DifferenceInMeans, RegressionAdjustment, IPW, IPWNormalized, AIPW, NearestNeighbourMatching, Subclassification:
 		return []Estimand{ATE, ATT, ATC}
 	case OverlapWeighted:
 		return []Estimand{ATO}
@@ -301,6 +315,12 @@ func (sc *Scores) EffectWith(o EffectOptions, est Estimator, target Estimand, ce
 		eff.err = err
 		return eff
 	}
+	switch est {
+	case NearestNeighbourMatching:
+		return sc.Match(MatchOptions{Estimand: target}).Effect(cells...)
+	case Subclassification:
+		return sc.Subclassify(0).Effect(target, cells...)
+	}
 	for _, c := range cells {
 		if err := c.Err(); err != nil {
 			eff.err = err
@@ -313,7 +333,7 @@ func (sc *Scores) EffectWith(o EffectOptions, est Estimator, target Estimand, ce
 	}
 	d := sc.Design
 	if d.Y == nil {
-		eff.err = fmt.Errorf("%s: no outcome: set one with .Outcome(\"column\")", est)
+		eff.err = settingErr("Outcome", "column", est.String()+": no outcome: set one with ", "")
 		return eff
 	}
 	eff.N, eff.NTreated, eff.NControl = d.N, d.Treated, d.Control
@@ -435,6 +455,9 @@ func (eff *Effect) aliasFlags(d *Design, oc *outcomes) {
 // covariance of the arm means (only without fw).
 func evaluate(sc *Scores, est Estimator, target Estimand, e []float64, oc *outcomes, fw []float64, withSE bool) (estOut, error) {
 	d := sc.Design
+	if est == NearestNeighbourMatching || est == Subclassification {
+		return estOut{}, fmt.Errorf("%s is not resampled by the bootstrap: use its own standard error (Scores.Match, Scores.Subclassify); for matching with replacement the bootstrap is not valid (Abadie & Imbens 2008)", est)
+	}
 	if e == nil {
 		e = sc.E
 	}
@@ -886,17 +909,27 @@ func (es *Estimates) Err() error {
 	return es.err
 }
 
-// Get returns the effect of one estimator, or nil.
+// Get returns the effect of one estimator. It never returns nil: when the
+// estimates failed as a whole, the effect carries their error (Err), and
+// when the estimator is not among them (it does not target the estimand),
+// an error that says so.
 func (es *Estimates) Get(est Estimator) *Effect {
 	if es == nil {
 		return &Effect{Estimator: est, err: errors.New("nil Estimates")}
 	}
+	nan := math.NaN()
+	failed := func(err error) *Effect {
+		return &Effect{Estimator: est, Estimand: es.Estimand, Value: nan, SE: nan, CI95: Interval{nan, nan}, err: err}
+	}
+	if es.err != nil {
+		return failed(es.err)
+	}
 	for _, e := range es.Items {
-		if e.Estimator == est {
+		if e != nil && e.Estimator == est {
 			return e
 		}
 	}
-	return nil
+	return failed(fmt.Errorf("%s: not among these estimates of the %s (it does not target that estimand)", est, es.Estimand))
 }
 
 // Effects estimates the estimand with every estimator that targets it:
@@ -990,6 +1023,7 @@ type effectJSON struct {
 	Notes       []string `json:"notes"`
 	NullReason  string   `json:"null_reason,omitempty"`
 	Error       string   `json:"error,omitempty"`
+	Status      string   `json:"status,omitempty"` // "failed" with Error
 }
 
 func (e *Effect) toJSON() effectJSON {
@@ -997,7 +1031,7 @@ func (e *Effect) toJSON() effectJSON {
 		SEMethod: e.SEMethod, N: e.N, NTreated: e.NTreated, NControl: e.NControl, Population: e.Population,
 		Supported: e.Supported, Unsupported: e.Unsupported, Flags: append([]Flag{}, e.Flags...), Notes: append([]string{}, e.Notes...)}
 	if e.err != nil {
-		j.Error = e.err.Error()
+		j.Error, j.Status = e.err.Error(), "failed"
 		j.NullReason = "not estimated: " + e.err.Error()
 		j.Supported = false
 		return j
@@ -1019,7 +1053,7 @@ func (e *Effect) toJSON() effectJSON {
 // and the flags; a value that cannot be given is null with null_reason.
 func (e *Effect) MarshalJSON() ([]byte, error) {
 	if e == nil {
-		return json.Marshal(errJSON{"nil Effect"})
+		return failedJSON(errors.New("nil Effect"))
 	}
 	return json.Marshal(e.toJSON())
 }
@@ -1027,7 +1061,7 @@ func (e *Effect) MarshalJSON() ([]byte, error) {
 // MarshalJSON writes the array of estimate entries.
 func (es *Estimates) MarshalJSON() ([]byte, error) {
 	if err := es.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	out := make([]effectJSON, 0, len(es.Items))
 	for _, e := range es.Items {

@@ -28,10 +28,15 @@ type ReportOptions struct {
 	// [α, 1−α]; Crump, Hotz, Imbens & Mitnik 2009), or "optimal" (their
 	// optimal α).
 	Trim string
+	// Caliper of the nearest-neighbour matching estimate, in SDs of the
+	// logit score (0: none; AustinCaliper, 0.2, is Austin's 2011 advice).
+	Caliper float64
 	// Bootstrap replicates for the primary estimator (0: none) and the seed.
 	Bootstrap int
 	Seed      uint64
-	// Context cancels the bootstrap; Progress reports its replicates.
+	// Context cancels the report: between its stages (BuildReport then
+	// returns the context's error) and within the bootstrap (which stops
+	// early, marked Partial). Progress reports the bootstrap's replicates.
 	Context  context.Context
 	Progress func(done, total int)
 }
@@ -81,8 +86,12 @@ type Report struct {
 	Cautions       []string `json:"cautions"`
 
 	// Results behind the fields, for views.
-	Study        *Study   `json:"-"`
-	Trimmed      *Trimmed `json:"-"`
+	Study   *Study   `json:"-"`
+	Trimmed *Trimmed `json:"-"`
+	// Matching and Strata behind the nearest_neighbour_matching and
+	// subclassification estimates (nil for the ATO).
+	Matching     *Matching `json:"-"`
+	Strata       *Strata   `json:"-"`
 	trimmedCells []*Cells
 	Options      ReportOptions `json:"-"`
 }
@@ -124,7 +133,9 @@ func discreteCovariates(d *Design) []string {
 
 // BuildReport runs the whole analysis: propensity model, support by arm,
 // positivity cells on the discrete covariates, balance before and after the
-// estimand's weights, optional trimming, every estimator of the estimand,
+// estimand's weights, optional trimming, every estimator of the estimand
+// (with nearest-neighbour matching and subclassification for the ATE, ATT
+// and ATC),
 // an optional bootstrap of the primary estimator (AIPW; overlap weights for
 // the ATO) and the verdict. A data or option error is returned as an error
 // naming the column, row or option.
@@ -138,6 +149,9 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	if o.Bootstrap < 0 {
 		return nil, fmt.Errorf("bootstrap: %d replicates: use 0 (none) or a positive number", o.Bootstrap)
 	}
+	if math.IsNaN(o.Caliper) || math.IsInf(o.Caliper, 0) || o.Caliper < 0 {
+		return nil, fmt.Errorf("caliper %g: use 0 (none) or a positive number of SDs of the logit score, e.g. 0.2", o.Caliper)
+	}
 	rule, trim, err := ParseTrim(o.Trim)
 	if err != nil {
 		return nil, err
@@ -147,29 +161,37 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		return nil, err
 	}
 	if d.Y == nil {
-		return nil, errors.New("no outcome column: name one (Outcome / --outcome)")
+		return nil, settingErr("Outcome", "column", "no outcome column: name one with ", "")
+	}
+	if err := cancelled(o.Context); err != nil {
+		return nil, err
 	}
 	sc := s.Propensity()
 	if err := sc.Err(); err != nil {
 		return nil, err
 	}
 	r := &Report{Schema: ReportSchema, Study: s, Options: o, Cautions: append([]string(nil), Cautions...)}
+	if err := cancelled(o.Context); err != nil {
+		return nil, err
+	}
 	r.Data = ReportData{Rows: d.RowsTotal, RowsUsed: d.N, RowsDropped: d.RowsDropped, Treated: d.Treated, Control: d.Control}
 	r.Roles = d.Roles()
 	r.Propensity = sc
 	r.Support = sc.Support()
 	var cells []*Cells
 	if cols := discreteCovariates(d); len(cols) > 0 {
+		// The cells are an optional part: when they fail they stay in the
+		// report marked failed, and the verdict says it did not judge them.
 		r.Cells = s.Cells(cols...)
-		if err := r.Cells.Err(); err != nil {
-			return nil, err
+		if r.Cells.Err() == nil {
+			cells = append(cells, r.Cells)
 		}
-		cells = append(cells, r.Cells)
 	}
 	r.Verdict = sc.Verdict(VerdictOptions{}, cells...)
 	if err := r.Verdict.Err(); err != nil {
 		return nil, err
 	}
+	noteFailedCells(r.Verdict, r.Cells)
 	est := sc
 	if trim {
 		tr := sc.Trim(rule)
@@ -188,19 +210,23 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		r.Trimming = rt
 		est = tr.Scores
 		var tcells []*Cells
+		var c *Cells
 		if cols := discreteCovariates(tr.Design); len(cols) > 0 {
 			// The positivity cells of the kept units, by the kept design's rows.
-			c := tr.Cells(cols...)
-			if err := c.Err(); err != nil {
-				return nil, err
+			c = tr.Cells(cols...)
+			if c.Err() == nil {
+				tcells = append(tcells, c)
 			}
-			tcells = append(tcells, c)
 		}
 		r.trimmedCells = tcells
 		r.VerdictTrimmed = est.Verdict(VerdictOptions{}, tcells...)
 		if err := r.VerdictTrimmed.Err(); err != nil {
 			return nil, err
 		}
+		noteFailedCells(r.VerdictTrimmed, c)
+	}
+	if err := cancelled(o.Context); err != nil {
+		return nil, err
 	}
 	w := est.Weights(o.Estimand)
 	if err := w.Err(); err != nil {
@@ -216,11 +242,29 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	if trim {
 		estCells = r.trimmedCells
 	}
+	if err := cancelled(o.Context); err != nil {
+		return nil, err
+	}
 	es := est.Effects(o.Estimand, estCells...)
 	if err := es.Err(); err != nil {
 		return nil, err
 	}
 	r.Estimates = es.Items
+	if o.Estimand != ATO {
+		// Matching on the logit score and subclassification on its quintiles.
+		r.Matching = est.Match(MatchOptions{Estimand: o.Estimand, Caliper: o.Caliper})
+		r.Strata = est.Subclassify(0)
+		extra := []*Effect{r.Matching.Effect(estCells...), r.Strata.Effect(o.Estimand, estCells...)}
+		for _, e := range extra {
+			if trim {
+				r.Trimmed.mark(e)
+			}
+		}
+		r.Estimates = append(r.Estimates, extra...)
+	}
+	if err := cancelled(o.Context); err != nil {
+		return nil, err
+	}
 	if o.Bootstrap > 0 {
 		ctx := o.Context
 		if ctx == nil {
@@ -233,12 +277,28 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 				primary = IPWNormalized
 			}
 		}
+		// A failed bootstrap is an optional part: it stays in the report,
+		// marked failed with why (see Bootstrap.Status), and takes nothing else with it.
 		r.Bootstrap = est.Bootstrap(ctx, primary, o.Estimand, BootstrapOptions{Replicates: o.Bootstrap, Seed: o.Seed, Progress: o.Progress})
-		if err := r.Bootstrap.Err(); err != nil {
-			return nil, err
-		}
 	}
 	return r, nil
+}
+
+// cancelled returns the error of a cancelled context (nil for none).
+func cancelled(ctx context.Context) error {
+	if ctx == nil || ctx.Err() == nil {
+		return nil
+	}
+	return fmt.Errorf("report cancelled: %w", ctx.Err())
+}
+
+// noteFailedCells adds to v a note that the positivity cells c failed and
+// were not judged (nothing when c is nil or did not fail).
+func noteFailedCells(v *Verdict, c *Cells) {
+	if c == nil || c.Err() == nil || v == nil {
+		return
+	}
+	v.Notes = append(v.Notes, "positivity cells on "+strings.Join(c.Columns, ", ")+" could not be built ("+c.Err().Error()+"): this verdict does not judge them")
 }
 
 // Err says why the report is unusable (nil, or not built by BuildReport).
@@ -301,7 +361,14 @@ func (r *Report) String() string {
 		fmt.Fprintf(&b, "  %-22s %s %12.4g  SE %10.4g  95%% CI [%.4g, %.4g]  (%s)%s\n", e.Estimator, e.Estimand, e.Value, e.SE, e.CI95.Lo, e.CI95.Hi, e.SEMethod, flag)
 	}
 	if r.Bootstrap != nil {
-		fmt.Fprintf(&b, "  bootstrap: %s\n", strings.TrimSpace(strings.SplitN(r.Bootstrap.String(), "\n", 2)[0]))
+		if st, why := r.Bootstrap.Status(); st == BootstrapFailed {
+			fmt.Fprintf(&b, "  bootstrap: FAILED: %s\n", why)
+		} else {
+			fmt.Fprintf(&b, "  bootstrap: %s\n", strings.TrimSpace(strings.SplitN(r.Bootstrap.String(), "\n", 2)[0]))
+		}
+	}
+	if r.Cells != nil && r.Cells.Err() != nil {
+		fmt.Fprintf(&b, "positivity cells: FAILED: %v (the verdict does not judge them)\n", r.Cells.Err())
 	}
 	fmt.Fprintf(&b, "verdict: %s", strings.ToUpper(r.Verdict.Status))
 	if len(r.Verdict.Reasons) > 0 {

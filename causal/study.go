@@ -275,7 +275,7 @@ func (s *Study) resolve() (*Design, error) {
 		return nil, errors.New("no data loaded")
 	}
 	if s.treat == "" {
-		return nil, errors.New("no treatment column: call .Treat(\"column\")")
+		return nil, settingErr("Treat", "column", "no treatment column: name it with ", "")
 	}
 	seen := map[string]string{s.treat: "treatment"}
 	if s.outcome != "" {
@@ -287,7 +287,7 @@ func (s *Study) resolve() (*Design, error) {
 	for _, c := range s.covariates {
 		if r, dup := seen[c]; dup {
 			if r == "covariate" {
-				return nil, fmt.Errorf("covariate %s is listed twice in Adjust", quoteValue(c))
+				return nil, fmt.Errorf("covariate %s is listed twice among the covariates", quoteValue(c))
 			}
 			return nil, fmt.Errorf("column %s is the %s and cannot also be a covariate", quoteValue(c), r)
 		}
@@ -338,8 +338,8 @@ func (s *Study) resolve() (*Design, error) {
 		}
 	}
 	if nInc > 0 && !s.dropIncomp {
-		return nil, fmt.Errorf("missing values in %s: %d row%s incomplete; fill them in, or call .DropIncomplete() to drop those rows (the report then says how many were dropped)",
-			strings.Join(miss, ", "), nInc, plural(nInc, " is", "s are"))
+		return nil, settingErr("DropIncomplete", "", fmt.Sprintf("missing values in %s: %d row%s incomplete; fill them in, or use ",
+			strings.Join(miss, ", "), nInc, plural(nInc, " is", "s are")), " to drop those rows (the report then says how many were dropped)")
 	}
 	rows := make([]int, 0, n-nInc)
 	for i := 0; i < n; i++ {
@@ -510,9 +510,10 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 		}
 		if len(set) == 2 && treated != "" {
 			// Two numeric codes with the treated one named.
-			tv, kind := parseNumber(strings.TrimSpace(treated))
+			// The whole text must be a number of the data-file grammar ("1abc" is not 1).
+			tv, kind := parseNumber(treated)
 			if kind != numOK || !set[tv] {
-				return nil, fmt.Errorf("treatment %q: treated level %s is not one of its values %s", c.Name, quoteValue(treated), strings.Join(levels, ", "))
+				return nil, settingErr("TreatedLevel", treated, fmt.Sprintf("treatment %q: ", c.Name), " names a value it does not have; its values are "+strings.Join(levels, ", "))
 			}
 			for k, i := range rows {
 				if c.Num[i] == tv {
@@ -538,7 +539,7 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 				if a == "false" && b == "true" {
 					tl = levels[1]
 				} else {
-					return nil, fmt.Errorf("treatment %q has the labels %q and %q: say which one is treated with .TreatedLevel(%q) (or --treated-level)", c.Name, levels[0], levels[1], levels[1])
+					return nil, settingErr("TreatedLevel", levels[1], fmt.Sprintf("treatment %q has the labels %q and %q: say which one is treated with ", c.Name, levels[0], levels[1]), "")
 				}
 			}
 			code := int32(-1)
@@ -548,7 +549,7 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 				}
 			}
 			if code < 0 || !present[code] {
-				return nil, fmt.Errorf("treatment %q: treated level %s is not one of its values %q, %q", c.Name, quoteValue(tl), levels[0], levels[1])
+				return nil, settingErr("TreatedLevel", tl, fmt.Sprintf("treatment %q: ", c.Name), fmt.Sprintf(" names a value it does not have; its values are %q, %q", levels[0], levels[1]))
 			}
 			for k, i := range rows {
 				if c.Codes[i] == code {
@@ -568,7 +569,7 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 		}
 		return nil, fmt.Errorf("treatment %q has more than two values (%s): it must be binary; recode it to two levels", c.Name, strings.Join(shown, ", "))
 	default:
-		return nil, fmt.Errorf("treatment %q has the values %s: use 0/1, or name the treated value with .TreatedLevel", c.Name, strings.Join(levels, " and "))
+		return nil, settingErr("TreatedLevel", "", fmt.Sprintf("treatment %q has the values %s: use 0/1, or name the treated value with ", c.Name, strings.Join(levels, " and ")), "")
 	}
 }
 

@@ -28,6 +28,16 @@
 // LibraryScript wraps a pinned build so that it loads with or without
 // RequireJS, and Page assembles a standalone page around views.
 //
+// # Ad-hoc results
+//
+// Rows a user computes in a loop (a simulation over a grid) become a Sheet,
+// from a slice of structs (Series) or named slices (Columns). A Sheet shows
+// as a table with a CSV download (its HTML, String and MarshalJSON), and
+// Line and Scatter draw its columns as a Chart built like the others:
+//
+//	rows := widgets.Series(results) // fields named by their json tags
+//	kernel.Show(rows.Line("dims", "cells_with_both_arms", "true_overlap"), rows)
+//
 // # Safety
 //
 // Every string that comes from the data (column names, levels, messages

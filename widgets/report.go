@@ -18,7 +18,8 @@ var reportCautions = template.Must(template.New("cautions").Parse(`<section clas
 
 // ReportPage is the self-contained HTML page of a report: its header, the
 // verdict, then the views of every part (propensity model, support by arm,
-// positivity cells, balance, trimming, estimates, bootstrap) and the
+// positivity cells, balance, trimming, estimates, matching and strata,
+// bootstrap) and the
 // cautions. echartsJS is the ECharts bundle to inline (nil: the charts show
 // their static pictures and a note says how to get interactive ones). Every
 // string from the data is escaped.
@@ -31,6 +32,9 @@ func ReportPage(r *causal.Report, echartsJS []byte) string {
 	boot := ""
 	if r.Bootstrap != nil {
 		boot = fmt.Sprintf("%d replicates, seed %d", r.Options.Bootstrap, r.Options.Seed)
+		if st, _ := r.Bootstrap.Status(); st != causal.BootstrapOK {
+			boot += " (" + st + ")"
+		}
 	}
 	trim := ""
 	if r.Trimming != nil {
@@ -47,7 +51,9 @@ func ReportPage(r *causal.Report, echartsJS []byte) string {
 		head.WriteString(ErrorPanel(err))
 	}
 	body := []string{head.String(), HTML(r.Verdict), HTML(r.Propensity), HTML(r.Support)}
-	if r.Cells != nil {
+	if r.Cells != nil && r.Cells.Err() != nil {
+		body = append(body, PartFailedPanel("Positivity cells", ErrorMessage(r.Cells.Err())+" (the verdict does not judge them)"))
+	} else if r.Cells != nil {
 		body = append(body, HTML(r.Cells))
 	}
 	body = append(body, HTML(r.Balance))
@@ -55,7 +61,15 @@ func ReportPage(r *causal.Report, echartsJS []byte) string {
 		body = append(body, HTML(r.Trimmed))
 	}
 	body = append(body, HTML(&causal.Estimates{Estimand: r.Options.Estimand, Items: r.Estimates}))
-	if r.Bootstrap != nil {
+	if r.Matching != nil {
+		body = append(body, optionalPart("Matching", r.Matching))
+	}
+	if r.Strata != nil {
+		body = append(body, optionalPart("Subclassification", r.Strata))
+	}
+	if st, why := r.Bootstrap.Status(); r.Bootstrap != nil && st == causal.BootstrapFailed {
+		body = append(body, PartFailedPanel("Bootstrap", why))
+	} else if r.Bootstrap != nil {
 		body = append(body, HTML(r.Bootstrap))
 	}
 	var c strings.Builder
@@ -67,4 +81,13 @@ func ReportPage(r *causal.Report, echartsJS []byte) string {
 	}
 	title := "counterpart report: " + roles.Outcome + " by " + roles.Treatment
 	return Page(title, body, echartsJS)
+}
+
+// optionalPart is the view of a part of a report that may fail without
+// taking the report with it: a failed part is shown with PartFailedPanel.
+func optionalPart(title string, x any) string {
+	if err := resultErr(x); err != nil {
+		return PartFailedPanel(title, ErrorMessage(err))
+	}
+	return HTML(x)
 }

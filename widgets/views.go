@@ -24,7 +24,7 @@ type Viewer interface {
 // *causal.Erosion, *causal.BalanceSheet, *causal.Verdict, *causal.Weights,
 // *causal.Effect, *causal.Estimates, *causal.Trimmed, *causal.Bootstrap,
 // *causal.Sweep, *causal.ExtrapolationAudit, *causal.ExtrapolationCurve,
-// and errors; any
+// *causal.Matching, *causal.Strata, and errors; any
 // other value with HTML and String methods is passed through, and anything
 // else is shown as escaped text.
 //
@@ -114,6 +114,10 @@ func (v resultView) HTML() (out string) {
 		return compose("extrapolation", headline(x), extrapolationParts(x))
 	case *causal.ExtrapolationCurve:
 		return compose("extrapolation-curve", headline(x), curveParts(x))
+	case *causal.Matching:
+		return compose("matching", headline(x), matchingParts(x))
+	case *causal.Strata:
+		return compose("strata", headline(x), strataParts(x))
 	case Viewer:
 		return x.HTML()
 	case interface{ HTML() string }:
@@ -280,6 +284,10 @@ func typeHeadline(x any) string {
 		return extrapolationHeadline(v)
 	case *causal.ExtrapolationCurve:
 		return curveHeadline(v)
+	case *causal.Matching:
+		return matchingHeadline(v)
+	case *causal.Strata:
+		return strataHeadline(v)
 	}
 	return ""
 }
