@@ -41,6 +41,7 @@ func reportCommand() *command {
 		htmlOut := fs.String("html", "", "write a self-contained HTML report to FILE")
 		failOn := fs.String("fail-on", "", "exit 3 when the verdict is this bad: violated, or limited (limited or violated); with --trim the verdict on the trimmed units is judged")
 		dropIncomplete := fs.Bool("drop-incomplete", false, "drop rows with a missing value in a role column (counted in the report) instead of stopping")
+		categorical := fs.String("categorical", "", "comma-separated covariates whose values are categories even where they look like numbers (e.g. region codes)")
 		delimiter := fs.String("delimiter", ",", "field separator of --data: one character such as , ; | or the word tab")
 		maxField := fs.Int("max-field", causal.DefaultMaxField, "longest field of --data accepted, in bytes")
 		partial := fs.Bool("partial-on-interrupt", false, "on Ctrl-C during --bootstrap, write the outputs with the replicates done, the bootstrap marked partial (default: write nothing)")
@@ -85,6 +86,12 @@ func reportCommand() *command {
 		if _, err := os.Stat(*data); err != nil {
 			return fmt.Errorf("--data %s: %v", *data, errors.Unwrap(err))
 		}
+		var cats []string
+		if *categorical != "" {
+			if cats, err = nameList("--categorical", *categorical); err != nil {
+				return err
+			}
+		}
 		delim, err := causal.ParseDelimiter(*delimiter)
 		if err != nil {
 			return fmt.Errorf("--%v", err)
@@ -110,6 +117,9 @@ func reportCommand() *command {
 			}
 			if *dropIncomplete {
 				s = s.DropIncomplete()
+			}
+			if len(cats) > 0 {
+				s = s.AsCategory(cats...)
 			}
 			return causal.BuildReport(s, opts)
 		})

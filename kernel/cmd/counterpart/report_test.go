@@ -306,3 +306,29 @@ func TestReportGateJudgesTrimmedUnits(t *testing.T) {
 		t.Errorf("verdicts: data %v, trimmed %v", m["verdict"], m["verdict_trimmed"])
 	}
 }
+
+// A numeric covariate with one stray text field is refused with the flag that
+// fixes it (--categorical), and --categorical makes the run go through.
+func TestReportCategoricalFlag(t *testing.T) {
+	var b strings.Builder
+	b.WriteString("x,t,y\n")
+	for i := 0; i < 200; i++ {
+		x := fmt.Sprint(1 + i%7)
+		if i == 7 {
+			x = "0x1p3"
+		}
+		fmt.Fprintf(&b, "%s,%d,%d\n", x, i%2, i%5)
+	}
+	p := writeCSV(t, "stray.csv", b.String())
+	args := []string{"report", "--data", p, "--treatment", "t", "--outcome", "y", "--covariates", "x"}
+	r := runCmd(t, args...)
+	if r.code != 1 || !strings.Contains(r.stderr, `--categorical "x"`) || strings.Contains(r.stderr, "AsCategory") {
+		t.Errorf("stray text: exit %d, stderr %q; want 1 naming --categorical", r.code, r.stderr)
+	}
+	if r := runCmd(t, append(args, "--categorical", "x,")...); r.code != 1 || !strings.Contains(r.stderr, "--categorical") {
+		t.Errorf("--categorical with an empty name: exit %d, stderr %q", r.code, r.stderr)
+	}
+	if r := runCmd(t, append(args, "--categorical", "x")...); r.code != 0 {
+		t.Errorf("--categorical x: exit %d, stderr %q", r.code, r.stderr)
+	}
+}
