@@ -304,13 +304,13 @@ func (r *Report) String() string {
 	if r.Bootstrap != nil {
 		fmt.Fprintf(&b, "  bootstrap: %s\n", strings.TrimSpace(strings.SplitN(r.Bootstrap.String(), "\n", 2)[0]))
 	}
-	fmt.Fprintf(&b, "verdict: %s", strings.ToUpper(r.Verdict.Status))
+	fmt.Fprintf(&b, "verdict: %s", strings.ToUpper(string(r.Verdict.Status)))
 	if len(r.Verdict.Reasons) > 0 {
 		fmt.Fprintf(&b, " — %s", strings.Join(r.Verdict.Reasons, "; "))
 	}
 	fmt.Fprintf(&b, "\nsupported estimands: %s\n", strings.Join(r.Verdict.Supported, ", "))
 	if v := r.VerdictTrimmed; v != nil {
-		fmt.Fprintf(&b, "verdict on the trimmed units: %s; supported estimands there: %s\n", strings.ToUpper(v.Status), strings.Join(v.Supported, ", "))
+		fmt.Fprintf(&b, "verdict on the trimmed units: %s; supported estimands there: %s\n", strings.ToUpper(string(v.Status)), strings.Join(v.Supported, ", "))
 	}
 	b.WriteString("caution: " + Cautions[0] + "\n")
 	return b.String()

@@ -53,7 +53,7 @@ func TestVerdictRemediesWater(t *testing.T) {
 	if att.Unrepresented < 552 || att.DropsTreated+att.DropsControl != 0 || att.Who[0].Term != "district=harbour" || !strings.Contains(att.WhoText, "district=harbour") {
 		t.Errorf("ATT remedy cost %+v", att)
 	}
-	if v.Remedy != att.Text || !strings.Contains(att.Text, "every treated unit has comparable controls") {
+	if v.Remedy != att.Text || !strings.Contains(att.Text, "re-judged by the same rules it is supported") || !strings.Contains(att.Text, "leaves out the 552 controls") {
 		t.Errorf("remedy text %q", v.Remedy)
 	}
 	tr := v.Remedies[2]
@@ -94,9 +94,12 @@ func TestVerdictRemedyAdequate(t *testing.T) {
 		t.Errorf("%+v", v.Remedies)
 	}
 	// Limited without a violation (scores reaching 0.99 for pools on big
-	// lots): overlap weights recommended, trimming as the alternative.
+	// lots): the ATE stays identified but is supported with caution (extreme
+	// scores, variance inflation); no remedy is needed for identification,
+	// overlap weights and trimming (re-judged: supported) are alternatives.
 	l := waterStudy().Propensity().Verdict(VerdictOptions{})
-	if l.Status != Limited || l.Remedies[0].Action != "overlap_weights" || l.Remedies[len(l.Remedies)-1].Action != "trim" {
+	if l.Status != Limited || l.StatusOf(ATE) != SupportedWithCaution || l.Remedies[0].Action != "none" || len(l.Remedies) < 3 ||
+		l.Remedies[1].Action != "overlap_weights" || l.Remedies[2].Action != "trim" || l.Remedies[2].Status != Supported {
 		t.Errorf("limited: %s %+v", l.Status, l.Remedies)
 	}
 }

@@ -1,0 +1,307 @@
+package causal
+
+import (
+	"encoding/binary"
+	"math"
+	"math/rand/v2"
+	"sort"
+	"sync"
+
+	"gonum.org/v1/gonum/mat"
+)
+
+// logNoneOf is log P(a group of m units drawn without replacement from n
+// units, k of which have a property, holds none of them): the hypergeometric
+// probability C(n − k, m) / C(n, m). −Inf when m > n − k.
+func logNoneOf(m, n, k int) float64 {
+	if m > n-k {
+		return math.Inf(-1)
+	}
+	return logChoose(n-k, m) - logChoose(n, m)
+}
+
+// chanceOneArm is the probability that a group of m units (a cell, a
+// covariate level) holds units of one arm only when the n units' treatment
+// is assigned completely at random with n1 treated: the exact hypergeometric
+// P(no treated) + P(no controls) = [C(n − n1, m) + C(n1, m)] / C(n, m) for
+// m ≥ 1 (sampling without replacement; e.g. Johnson, Kemp & Kotz 2005,
+// Univariate Discrete Distributions, ch. 6). It is the p-value of "this
+// group lacks an arm" under random assignment with the same arm sizes.
+func chanceOneArm(m, n, n1 int) float64 {
+	if m <= 0 {
+		return 1
+	}
+	p := math.Exp(logNoneOf(m, n, n1)) + math.Exp(logNoneOf(m, n, n-n1))
+	return math.Min(1, p)
+}
+
+// chanceSeparated is the probability that a continuous covariate with no
+// ties separates the arms completely (every treated value above every
+// control value or below every one) under random assignment with n1 of n
+// treated: 2 / C(n, n1) (1 when an arm is empty).
+func chanceSeparated(n, n1 int) float64 {
+	if n1 <= 0 || n1 >= n {
+		return 1
+	}
+	return math.Min(1, 2*math.Exp(-logChoose(n, n1)))
+}
+
+func logChoose(n, k int) float64 {
+	x, _ := math.Lgamma(float64(n + 1))
+	y, _ := math.Lgamma(float64(k + 1))
+	z, _ := math.Lgamma(float64(n - k + 1))
+	return x - y - z
+}
+
+// permStat is one statistic of the permutation family: larger is worse.
+// fn reads the treatment of the free units (t) and their scores (e).
+type permStat struct {
+	name string
+	fn   func(t, e []float64) float64
+}
+
+// permResult is the permutation null of a family of statistics.
+type permResult struct {
+	B        int
+	observed []float64
+	mean     []float64 // mean of each statistic over the permutations
+	adjP     []float64 // family-wise adjusted p-value (single-step minP)
+}
+
+// nullFit is the propensity refit used inside the permutations: one Newton
+// step of the logistic likelihood from the null model (intercept only) on
+// the free units — Le Cam's one-step estimator, first-order equivalent to
+// the maximum-likelihood refit when treatment is independent of the
+// covariates. With centred design columns X (constant ones dropped) and
+// π the treated share, β = (π(1 − π) XᵀX)⁻¹ Xᵀ(t − π) and
+// e = logistic(logit π + Xβ). XᵀX does not depend on t, so it is factored
+// once and each permutation costs O(n·p).
+type nullFit struct {
+	n, q int
+	xc   []float64 // n × q centred columns
+	chol mat.Cholesky
+	pi   float64
+	ok   bool
+}
+
+func newNullFit(d *Design, free []int, pi float64) *nullFit {
+	nf := &nullFit{n: len(free), pi: pi}
+	var cols []int
+	means := make([]float64, d.P)
+	for j := 1; j < d.P; j++ {
+		var s, s2 float64
+		for _, i := range free {
+			v := d.X[i*d.P+j]
+			s += v
+			s2 += v * v
+		}
+		m := s / float64(len(free))
+		means[j] = m
+		if s2/float64(len(free))-m*m > 1e-12*(1+m*m) {
+			cols = append(cols, j)
+		}
+	}
+	nf.q = len(cols)
+	if nf.q == 0 {
+		nf.ok = true
+		return nf
+	}
+	nf.xc = make([]float64, nf.n*nf.q)
+	for r, i := range free {
+		row := d.X[i*d.P : (i+1)*d.P]
+		for a, j := range cols {
+			nf.xc[r*nf.q+a] = row[j] - means[j]
+		}
+	}
+	q := nf.q
+	A := mat.NewSymDense(q, nil)
+	acc := make([]float64, q*q)
+	for r := 0; r < nf.n; r++ {
+		x := nf.xc[r*q : (r+1)*q]
+		for a := 0; a < q; a++ {
+			xa := x[a]
+			for b := a; b < q; b++ {
+				acc[a*q+b] += xa * x[b]
+			}
+		}
+	}
+	var tr float64
+	for a := 0; a < q; a++ {
+		tr += acc[a*q+a]
+	}
+	for jit := 0.0; jit < 1; jit = math.Max(1e-10, jit*100) {
+		for a := 0; a < q; a++ {
+			for b := a; b < q; b++ {
+				v := acc[a*q+b]
+				if a == b {
+					v += jit * tr / float64(q)
+				}
+				A.SetSym(a, b, v)
+			}
+		}
+		if nf.chol.Factorize(A) {
+			nf.ok = true
+			break
+		}
+	}
+	return nf
+}
+
+// scores writes the one-step scores for treatment t (free units) into e.
+func (nf *nullFit) scores(t, e []float64, g []float64) {
+	eta0 := math.Log(nf.pi / (1 - nf.pi))
+	q := nf.q
+	if q == 0 || !nf.ok {
+		for i := range e {
+			e[i] = nf.pi
+		}
+		return
+	}
+	for a := range g {
+		g[a] = 0
+	}
+	for r := 0; r < nf.n; r++ {
+		res := t[r] - nf.pi
+		if res == 0 {
+			continue
+		}
+		x := nf.xc[r*q : (r+1)*q]
+		for a := range g {
+			g[a] += x[a] * res
+		}
+	}
+	gv := mat.NewVecDense(q, g)
+	var bv mat.VecDense
+	if err := nf.chol.SolveVecTo(&bv, gv); err != nil {
+		for i := range e {
+			e[i] = nf.pi
+		}
+		return
+	}
+	beta := bv.RawVector().Data
+	scale := 1 / (nf.pi * (1 - nf.pi))
+	for r := 0; r < nf.n; r++ {
+		x := nf.xc[r*q : (r+1)*q]
+		eta := eta0
+		for a, b := range beta {
+			eta += x[a] * b * scale
+		}
+		e[r] = sigmoid(eta)
+	}
+}
+
+// permRand is the generator of permutation b: ChaCha8 keyed by the seed and
+// b, so the result does not depend on how permutations are spread over
+// cores.
+func permRand(seed uint64, b int) *rand.Rand {
+	var key [32]byte
+	binary.LittleEndian.PutUint64(key[0:], seed)
+	binary.LittleEndian.PutUint64(key[8:], uint64(b))
+	copy(key[16:], "counterpart/perm")
+	return rand.New(rand.NewChaCha8(key))
+}
+
+// permutationNull computes the statistics on the observed treatment (with
+// the scores eObs) and on B random permutations of the treatment among the
+// free units, each with its propensity refit (nullFit), and the family-wise
+// adjusted p-values by the single-step minP method of Westfall & Young
+// (1993, Resampling-Based Multiple Testing, §2.6): for permutation b (the
+// observed data counting as one of the B + 1), p_k(b) is the share of the
+// B + 1 values of statistic k at least as large as its value in b; the
+// adjusted p of statistic k is the share of the B + 1 data sets whose
+// smallest p_k(b) over all k is at most the observed p_k. Under random
+// assignment the chance that any adjusted p is at most α is at most α
+// (up to the refit approximation). Seeded; independent of GOMAXPROCS.
+func permutationNull(d *Design, free []int, eObs []float64, stats []permStat, B int, seed uint64) *permResult {
+	K := len(stats)
+	res := &permResult{B: B, observed: make([]float64, K), mean: make([]float64, K), adjP: make([]float64, K)}
+	if K == 0 {
+		return res
+	}
+	n := len(free)
+	tObs := make([]float64, n)
+	var n1 float64
+	for r, i := range free {
+		tObs[r] = d.T[i]
+		n1 += d.T[i]
+	}
+	pi := n1 / float64(n)
+	for k, s := range stats {
+		res.observed[k] = s.fn(tObs, eObs)
+	}
+	if B <= 0 || n1 == 0 || n1 == float64(n) {
+		for k := range res.adjP {
+			res.adjP[k] = 1
+		}
+		return res
+	}
+	nf := newNullFit(d, free, pi)
+	vals := make([][]float64, K) // [k][b], b = 0 observed
+	for k := range vals {
+		vals[k] = make([]float64, B+1)
+		vals[k][0] = res.observed[k]
+	}
+	_, count := chunking(B)
+	var wg sync.WaitGroup
+	per := (B + count - 1) / count
+	for c := 0; c < count; c++ {
+		lo, hi := c*per, min(B, (c+1)*per)
+		if lo >= hi {
+			break
+		}
+		wg.Add(1)
+		go func(lo, hi int) {
+			defer wg.Done()
+			t := make([]float64, n)
+			e := make([]float64, n)
+			g := make([]float64, nf.q)
+			for b := lo; b < hi; b++ {
+				copy(t, tObs)
+				r := permRand(seed, b)
+				for i := n - 1; i > 0; i-- {
+					j := r.IntN(i + 1)
+					t[i], t[j] = t[j], t[i]
+				}
+				nf.scores(t, e, g)
+				for k, s := range stats {
+					vals[k][b+1] = s.fn(t, e)
+				}
+			}
+		}(lo, hi)
+	}
+	wg.Wait()
+	// p_k(b): share of the B+1 values ≥ value b.
+	pk := make([][]float64, K)
+	for k := range vals {
+		sorted := append([]float64(nil), vals[k]...)
+		sort.Float64s(sorted)
+		pk[k] = make([]float64, B+1)
+		var s float64
+		for b, v := range vals[k] {
+			ge := len(sorted) - sort.SearchFloat64s(sorted, v)
+			pk[k][b] = float64(ge) / float64(B+1)
+			if b > 0 {
+				s += v
+			}
+		}
+		res.mean[k] = s / float64(B)
+	}
+	minP := make([]float64, B+1)
+	for b := range minP {
+		m := 1.0
+		for k := range pk {
+			m = math.Min(m, pk[k][b])
+		}
+		minP[b] = m
+	}
+	for k := range stats {
+		var c int
+		for _, m := range minP {
+			if m <= pk[k][0] {
+				c++
+			}
+		}
+		res.adjP[k] = float64(c) / float64(B+1)
+	}
+	return res
+}
