@@ -48,14 +48,14 @@ type Cell struct {
 	// Thin: an arm has units but fewer than the Thin threshold.
 	Thin bool `json:"thin"`
 	// Chance is, for a cell with an empty arm, the probability that a cell
-	// of this size would hold one arm only under random assignment with the
-	// table's arm sizes: the exact hypergeometric P(no treated) + P(no
-	// controls) = [C(n − n₁, m) + C(n₁, m)] / C(n, m) for a cell of m of the
-	// n units (chanceOneArm). 1 for cells with both arms. Structural marks
+	// of this size would lack that arm under random assignment with the
+	// table's arm sizes: the exact hypergeometric C(n − n_a, m) / C(n, m) for
+	// a cell of m of the n units lacking arm a of n_a units, doubled for the
+	// two arms (chanceMissing). 1 for cells with both arms. Structural marks
 	// an empty arm that chance does not explain: Chance below Alpha/K for a
-	// table of K cells (Bonferroni, Dunn 1961). Each cell is tested once for
-	// "an arm is empty", so a randomised design raises no alarm in the whole
-	// table with probability at least 1 − Alpha.
+	// table of K cells (Bonferroni, Dunn 1961, over cells and arms), so a
+	// randomised design raises no alarm in the whole table with probability
+	// at least 1 − Alpha.
 	Chance     float64 `json:"chance"`
 	Structural bool    `json:"structural"`
 }
@@ -423,7 +423,11 @@ func buildCells(d *Design, columns []string, codes [][]int32, cuts []Cut, o Cell
 		cell := &c.Rows[r]
 		cell.Chance = 1
 		if cell.Treated == 0 || cell.Control == 0 {
-			cell.Chance = chanceOneArm(cell.Treated+cell.Control, n, d.Treated)
+			missing := d.Treated
+			if cell.Control == 0 {
+				missing = d.Control
+			}
+			cell.Chance = chanceMissing(cell.Treated+cell.Control, n, missing)
 			if cell.Chance < c.ChanceThreshold {
 				cell.Structural = true
 				c.Structural++

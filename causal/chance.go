@@ -20,19 +20,19 @@ func logNoneOf(m, n, k int) float64 {
 	return logChoose(n-k, m) - logChoose(n, m)
 }
 
-// chanceOneArm is the probability that a group of m units (a cell, a
-// covariate level) holds units of one arm only when the n units' treatment
-// is assigned completely at random with n1 treated: the exact hypergeometric
-// P(no treated) + P(no controls) = [C(n − n1, m) + C(n1, m)] / C(n, m) for
-// m ≥ 1 (sampling without replacement; e.g. Johnson, Kemp & Kotz 2005,
-// Univariate Discrete Distributions, ch. 6). It is the p-value of "this
-// group lacks an arm" under random assignment with the same arm sizes.
-func chanceOneArm(m, n, n1 int) float64 {
+// chanceMissing is the chance that a group of m units (a cell, a covariate
+// level, the units at a covariate's tail) holds none of a given arm of
+// nArm units when the n units' treatment is assigned completely at random:
+// the exact hypergeometric C(n − nArm, m) / C(n, m) (sampling without
+// replacement; e.g. Johnson, Kemp & Kotz 2005, Univariate Discrete
+// Distributions, ch. 6), doubled because either arm could be the missing
+// one (Bonferroni over the two arms). It is the p-value of "this group
+// lacks that arm" under random assignment with the same arm sizes.
+func chanceMissing(m, n, nArm int) float64 {
 	if m <= 0 {
 		return 1
 	}
-	p := math.Exp(logNoneOf(m, n, n1)) + math.Exp(logNoneOf(m, n, n-n1))
-	return math.Min(1, p)
+	return math.Min(1, 2*math.Exp(logNoneOf(m, n, nArm)))
 }
 
 // chanceSeparated is the probability that a continuous covariate with no
@@ -68,17 +68,23 @@ type permResult struct {
 	adjP     []float64 // family-wise adjusted p-value (single-step minP)
 }
 
-// nullFit is the propensity refit used inside the permutations: one Newton
-// step of the logistic likelihood from the null model (intercept only) on
-// the free units — Le Cam's one-step estimator, first-order equivalent to
-// the maximum-likelihood refit when treatment is independent of the
-// covariates. With centred design columns X (constant ones dropped) and
-// π the treated share, β = (π(1 − π) XᵀX)⁻¹ Xᵀ(t − π) and
-// e = logistic(logit π + Xβ). XᵀX does not depend on t, so it is factored
-// once and each permutation costs O(n·p).
+// nullFit is the propensity refit used inside the permutations: the
+// logistic maximum-likelihood fit on the free units by Newton iterations
+// with the Hessian held at its value under the null model (the chord or
+// fixed-Hessian Newton method; e.g. Kelley 1995, Iterative Methods for
+// Linear and Nonlinear Equations, §5.4). With centred design columns X
+// (constant ones dropped) and π the treated share, each step is
+// b₀ += Σ(t − e)/(n π(1 − π)), β += (π(1 − π) XᵀX)⁻¹ Xᵀ(t − e): its fixed
+// point solves the likelihood equations exactly, so the refit is the
+// maximum-likelihood fit, and XᵀX, which does not depend on t, is factored
+// once; each step costs O(n·p). Under random assignment the Hessian is
+// close to the null one and a few steps converge; at most 25 are taken
+// (a permutation that separates a level stops there, with scores near 0 or
+// 1 as the observed fit has).
 type nullFit struct {
 	n, q int
 	xc   []float64 // n × q centred columns
+	sd   []float64 // their standard deviations (convergence scale)
 	chol mat.Cholesky
 	pi   float64
 	ok   bool
@@ -107,6 +113,7 @@ func newNullFit(d *Design, free []int, pi float64) *nullFit {
 		return nf
 	}
 	nf.xc = make([]float64, nf.n*nf.q)
+	nf.sd = make([]float64, nf.q)
 	for r, i := range free {
 		row := d.X[i*d.P : (i+1)*d.P]
 		for a, j := range cols {
@@ -128,6 +135,7 @@ func newNullFit(d *Design, free []int, pi float64) *nullFit {
 	var tr float64
 	for a := 0; a < q; a++ {
 		tr += acc[a*q+a]
+		nf.sd[a] = math.Sqrt(acc[a*q+a] / float64(nf.n))
 	}
 	for jit := 0.0; jit < 1; jit = math.Max(1e-10, jit*100) {
 		for a := 0; a < q; a++ {
@@ -147,46 +155,56 @@ func newNullFit(d *Design, free []int, pi float64) *nullFit {
 	return nf
 }
 
-// scores writes the one-step scores for treatment t (free units) into e.
+// scores writes the refitted scores for treatment t (free units) into e;
+// g and beta are scratch of length q.
 func (nf *nullFit) scores(t, e []float64, g []float64) {
-	eta0 := math.Log(nf.pi / (1 - nf.pi))
 	q := nf.q
+	w0 := nf.pi * (1 - nf.pi)
+	b0 := math.Log(nf.pi / (1 - nf.pi))
+	for i := range e {
+		e[i] = nf.pi
+	}
 	if q == 0 || !nf.ok {
-		for i := range e {
-			e[i] = nf.pi
-		}
 		return
 	}
-	for a := range g {
-		g[a] = 0
-	}
-	for r := 0; r < nf.n; r++ {
-		res := t[r] - nf.pi
-		if res == 0 {
-			continue
-		}
-		x := nf.xc[r*q : (r+1)*q]
-		for a := range g {
-			g[a] += x[a] * res
-		}
-	}
+	beta := make([]float64, q)
 	gv := mat.NewVecDense(q, g)
-	var bv mat.VecDense
-	if err := nf.chol.SolveVecTo(&bv, gv); err != nil {
-		for i := range e {
-			e[i] = nf.pi
+	var step mat.VecDense
+	for it := 0; it < 25; it++ {
+		for a := range g {
+			g[a] = 0
 		}
-		return
-	}
-	beta := bv.RawVector().Data
-	scale := 1 / (nf.pi * (1 - nf.pi))
-	for r := 0; r < nf.n; r++ {
-		x := nf.xc[r*q : (r+1)*q]
-		eta := eta0
-		for a, b := range beta {
-			eta += x[a] * b * scale
+		var g0 float64
+		for r := 0; r < nf.n; r++ {
+			res := t[r] - e[r]
+			g0 += res
+			x := nf.xc[r*q : (r+1)*q]
+			for a := range g {
+				g[a] += x[a] * res
+			}
 		}
-		e[r] = sigmoid(eta)
+		if err := nf.chol.SolveVecTo(&step, gv); err != nil {
+			return
+		}
+		d0 := g0 / (float64(nf.n) * w0)
+		b0 += d0
+		big := math.Abs(d0)
+		for a, v := range step.RawVector().Data {
+			dv := v / w0
+			beta[a] += dv
+			big = math.Max(big, math.Abs(dv)*nf.sd[a])
+		}
+		for r := 0; r < nf.n; r++ {
+			x := nf.xc[r*q : (r+1)*q]
+			eta := b0
+			for a, b := range beta {
+				eta += x[a] * b
+			}
+			e[r] = sigmoid(eta)
+		}
+		if big < 1e-6 {
+			return
+		}
 	}
 }
 

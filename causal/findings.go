@@ -19,6 +19,11 @@ const (
 	// FindingSeparationChance: a level holds one arm only, as random
 	// assignment with these arm sizes would often give (a note).
 	FindingSeparationChance FindingCode = "separation_by_chance"
+	// FindingCovariateTail: the units beyond every unit of the other arm on
+	// a continuous covariate (above its largest or below its smallest value)
+	// are more than random assignment gives (a violation: that range holds
+	// one arm only).
+	FindingCovariateTail FindingCode = "covariate_tail"
 	// FindingNoOverlap: the arms' score ranges do not overlap (a violation).
 	FindingNoOverlap FindingCode = "no_overlap"
 	// FindingEmptyCells: positivity cells lacking an arm that chance does
@@ -101,6 +106,7 @@ type verdictRule struct {
 // verdictRules are the rules, in the order their findings are listed.
 var verdictRules = []verdictRule{
 	{nil, separationFindings},
+	{nil, tailFindings},
 	{nil, noOverlapFindings},
 	{nil, emptyCellFindings},
 	{sparseCellStats, sparseCellFindings},
@@ -124,22 +130,14 @@ func armEstimands(treatedArm bool) []string {
 
 // separationFindings screens each separation the propensity fit found: a
 // covariate level (or binary value) holding m units of one arm is a
-// violation when chanceOneArm(m, n, n₁) is below SeparationAlpha/L for the L
+// violation when chanceMissing(m, n, n_a) is below SeparationAlpha/L for the L
 // levels tested (Bonferroni), otherwise a note; complete separation by a
 // continuous covariate is screened with chanceSeparated. Separation by a
 // combination of covariates has no exact bound and counts as a violation.
 func separationFindings(j *judge) []Finding {
 	var out []Finding
 	d := j.d
-	levels := 0
-	for _, c := range d.Covariates {
-		if c.Kind == Categorical {
-			levels += len(c.Levels)
-		} else if k := termIndex(d, c.Name); k >= 0 && d.Terms[k].Binary {
-			levels += 2
-		}
-	}
-	levels = max(levels, 1)
+	levels := screenedGroups(d)
 	for _, s := range j.sc.Separation {
 		f := Finding{Code: FindingSeparation, Effect: Withdraws, Violation: true, Columns: nonEmpty(s.Column),
 			Observed: Num(float64(s.Units)), Expected: Num(math.NaN()), PValue: Num(math.NaN()), Method: methodHyper, mask: s.mask}
@@ -171,7 +169,11 @@ func separationFindings(j *judge) []Finding {
 			f.Method = "no exact chance bound for separation by a combination of covariates: counted as a violation"
 			f.Estimands = []string{"ATE", "ATT", "ATC"}
 		default:
-			p := chanceOneArm(s.Units, d.N, d.Treated)
+			missing := d.Treated
+			if s.Arm == "treated" {
+				missing = d.Control
+			}
+			p := chanceMissing(s.Units, d.N, missing)
 			f.PValue = Num(math.Min(1, p*float64(levels)))
 			f.Expected = Num(float64(s.Units) * p)
 			f.Estimands = armEstimands(s.Arm == "treated")
@@ -191,6 +193,105 @@ func separationFindings(j *judge) []Finding {
 			}
 		}
 		out = append(out, f)
+	}
+	return out
+}
+
+// screenedGroups is the number of groups the separation screen tests: the
+// levels of categorical covariates, both values of binary ones and both
+// tails of each continuous one (the Bonferroni count of SeparationAlpha).
+func screenedGroups(d *Design) int {
+	g := 0
+	for _, c := range d.Covariates {
+		if c.Kind == Categorical {
+			g += len(c.Levels)
+		} else if k := termIndex(d, c.Name); k >= 0 {
+			g += 2
+		}
+	}
+	return max(g, 1)
+}
+
+// tailFindings screens both tails of each continuous covariate: the r units
+// above every value of the other arm (or below every one) form a one-arm
+// group at the top (bottom) of the sorted values, which random assignment
+// with the same arm sizes gives with probability chanceMissing(r, n, n_a)
+// (the top r units are a random r-subset). Below SeparationAlpha/G for the G
+// groups of the separation screen (Bonferroni) it is a violation for the
+// estimands that need the missing arm there.
+func tailFindings(j *judge) []Finding {
+	d := j.d
+	var out []Finding
+	groups := screenedGroups(d)
+	for _, c := range d.Covariates {
+		if c.Kind == Categorical {
+			continue
+		}
+		k := termIndex(d, c.Name)
+		if k < 0 || d.Terms[k].Binary {
+			continue
+		}
+		lo1, hi1, lo0, hi0 := math.Inf(1), math.Inf(-1), math.Inf(1), math.Inf(-1)
+		for i := 0; i < d.N; i++ {
+			v := d.X[i*d.P+k]
+			if d.T[i] == 1 {
+				lo1, hi1 = math.Min(lo1, v), math.Max(hi1, v)
+			} else {
+				lo0, hi0 = math.Min(lo0, v), math.Max(hi0, v)
+			}
+		}
+		if hi1 < lo0 || hi0 < lo1 {
+			continue // complete separation: the separation rule's
+		}
+		for _, top := range []bool{true, false} {
+			var treatedArm bool
+			var beyond func(v float64) bool
+			switch {
+			case top && hi1 > hi0:
+				treatedArm, beyond = true, func(v float64) bool { return v > hi0 }
+			case top && hi0 > hi1:
+				treatedArm, beyond = false, func(v float64) bool { return v > hi1 }
+			case !top && lo1 < lo0:
+				treatedArm, beyond = true, func(v float64) bool { return v < lo0 }
+			case !top && lo0 < lo1:
+				treatedArm, beyond = false, func(v float64) bool { return v < lo1 }
+			default:
+				continue
+			}
+			mask := make([]bool, d.N)
+			r := 0
+			for i := 0; i < d.N; i++ {
+				if beyond(d.X[i*d.P+k]) {
+					mask[i] = true
+					r++
+				}
+			}
+			missing := d.Control
+			if !treatedArm {
+				missing = d.Treated
+			}
+			p := chanceMissing(r, d.N, missing)
+			if p >= j.o.SeparationAlpha/float64(groups) {
+				continue
+			}
+			arm, other, edge := "treated units", "control", "largest"
+			if !treatedArm {
+				arm, other = "controls", "treated"
+			}
+			if !top {
+				edge = "smallest"
+			}
+			f := Finding{Code: FindingCovariateTail, Effect: Withdraws, Violation: true, Estimands: armEstimands(treatedArm), Columns: []string{c.Name},
+				Observed: Num(float64(r)), Expected: Num(math.NaN()), PValue: Num(math.Min(1, p*float64(groups))), Method: methodHyper, mask: mask}
+			if treatedArm {
+				f.Treated = r
+			} else {
+				f.Control = r
+			}
+			f.Text = fmt.Sprintf("%s: the %d %s beyond the %s %s value form a one-arm range that random assignment with these arm sizes gives with probability %.2g (p = %.2g after Bonferroni over %d groups): treatment is deterministic there",
+				c.Name, r, arm, edge, other, p, float64(f.PValue), groups)
+			out = append(out, f)
+		}
 	}
 	return out
 }

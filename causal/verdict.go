@@ -621,7 +621,7 @@ func countMask(m []bool) int {
 // units compares the count with what random assignment with the same arm
 // sizes would give:
 //   - separation on a covariate level and cells lacking an arm: exact
-//     hypergeometric chance of a one-arm group of that size (chanceOneArm),
+//     hypergeometric chance that a group of that size lacks the arm (chanceMissing),
 //     Bonferroni over the groups tested; beyond chance a violation that
 //     withdraws the estimands needing the missing arm, else a note;
 //   - scores outside the other arm's range, extreme scores, sparse cells and
