@@ -429,8 +429,8 @@ func sparseCellStats(j *judge) {
 			}
 			return float64(s)
 		}
-		j.addStat(fmt.Sprintf("sparse_treated/%d", ti), func(t, _ []float64) float64 { return count(t, true) })
-		j.addStat(fmt.Sprintf("sparse_control/%d", ti), func(t, _ []float64) float64 { return count(t, false) })
+		j.addStat(fmt.Sprintf("sparse_treated/%d", ti), func(t, _ []float64, _ *scoreSummary) float64 { return count(t, true) })
+		j.addStat(fmt.Sprintf("sparse_control/%d", ti), func(t, _ []float64, _ *scoreSummary) float64 { return count(t, false) })
 	}
 }
 
@@ -485,28 +485,8 @@ func sparseCellFindings(j *judge) []Finding {
 // supportStats registers the units of each arm scored beyond every score of
 // the other arm (above its maximum or below its minimum).
 func supportStats(j *judge) {
-	out := func(t, e []float64, treatedArm bool) float64 {
-		lo1, hi1, lo0, hi0 := math.Inf(1), math.Inf(-1), math.Inf(1), math.Inf(-1)
-		for r, v := range e {
-			if t[r] == 1 {
-				lo1, hi1 = math.Min(lo1, v), math.Max(hi1, v)
-			} else {
-				lo0, hi0 = math.Min(lo0, v), math.Max(hi0, v)
-			}
-		}
-		var s float64
-		for r, v := range e {
-			if treatedArm && t[r] == 1 && (v > hi0 || v < lo0) {
-				s++
-			}
-			if !treatedArm && t[r] == 0 && (v > hi1 || v < lo1) {
-				s++
-			}
-		}
-		return s
-	}
-	j.addStat("outside_treated", func(t, e []float64) float64 { return out(t, e, true) })
-	j.addStat("outside_control", func(t, e []float64) float64 { return out(t, e, false) })
+	j.addStat("outside_treated", func(_, _ []float64, s *scoreSummary) float64 { return s.out1 })
+	j.addStat("outside_control", func(_, _ []float64, s *scoreSummary) float64 { return s.out0 })
 }
 
 func supportFindings(j *judge) []Finding {
@@ -559,25 +539,8 @@ func supportFindings(j *judge) []Finding {
 // controls carry ATT weights above (1 − Extreme)/Extreme) and the controls
 // scored below Extreme.
 func extremeStats(j *judge) {
-	eps := j.o.Extreme
-	j.addStat("extreme_treated", func(t, e []float64) float64 {
-		var s float64
-		for r, v := range e {
-			if t[r] == 1 && v > 1-eps {
-				s++
-			}
-		}
-		return s
-	})
-	j.addStat("extreme_control", func(t, e []float64) float64 {
-		var s float64
-		for r, v := range e {
-			if t[r] == 0 && v < eps {
-				s++
-			}
-		}
-		return s
-	})
+	j.addStat("extreme_treated", func(_, _ []float64, s *scoreSummary) float64 { return s.ext1 })
+	j.addStat("extreme_control", func(_, _ []float64, s *scoreSummary) float64 { return s.ext0 })
 }
 
 func extremeFindings(j *judge) []Finding {
@@ -625,27 +588,15 @@ type precision struct {
 // same arm sizes, (1/ESS₁ + 1/ESS₀)/(1/n₁ + 1/n₀) — the Kish design effect
 // of a difference of weighted means under equal variances.
 func precisionOf(target Estimand, t, e []float64) precision {
-	var s1, q1, m1, s0, q0, m0, n1, n0 float64
-	for r, v := range e {
-		w := rawWeight(target, t[r], v)
-		if t[r] == 1 {
-			s1, q1, m1, n1 = s1+w, q1+w*w, math.Max(m1, w), n1+1
-		} else {
-			s0, q0, m0, n0 = s0+w, q0+w*w, math.Max(m0, w), n0+1
-		}
-	}
-	p := precision{essT: kish(s1, q1), essC: kish(s0, q0), largest: math.Max(m1/s1, m0/s0)}
-	p.vif = (1/p.essT + 1/p.essC) / (1/n1 + 1/n0)
-	if math.IsNaN(p.vif) {
-		p.vif = math.Inf(1)
-	}
-	return p
+	var sum scoreSummary
+	summarise(t, e, 0, &sum)
+	return sum.precision(target)
 }
 
 func precisionStats(j *judge) {
 	for _, est := range []Estimand{ATE, ATT, ATC, ATO} {
 		est := est
-		j.addStat("vif_"+est.String(), func(t, e []float64) float64 { return precisionOf(est, t, e).vif })
+		j.addStat("vif_"+est.String(), func(_, _ []float64, s *scoreSummary) float64 { return s.precision(est).vif })
 	}
 }
 

@@ -29,6 +29,11 @@ type ReportOptions struct {
 	// [α, 1−α]; Crump, Hotz, Imbens & Mitnik 2009), or "optimal" (their
 	// optimal α).
 	Trim string
+	// Cells are the covariates that define the positivity cells (default:
+	// the categorical and 0/1 covariates, at most four); Bins cuts the
+	// continuous ones into quantile bins (default 5).
+	Cells []string
+	Bins  int
 	// Bootstrap replicates for the primary estimator (0: none) and the seed.
 	Bootstrap int
 	Seed      uint64
@@ -63,13 +68,15 @@ type ReportTrim struct {
 // report JSON contract (schema counterpart.report/v1) plus the results they
 // come from, for the HTML and text views.
 type Report struct {
-	Schema     string        `json:"schema"`
-	Data       ReportData    `json:"data"`
-	Roles      Roles         `json:"roles"`
-	Propensity *Scores       `json:"propensity"`
-	Support    *Support      `json:"support"`
-	Cells      *Cells        `json:"cells"`
-	Balance    *BalanceSheet `json:"balance"`
+	Schema     string     `json:"schema"`
+	Data       ReportData `json:"data"`
+	Roles      Roles      `json:"roles"`
+	Propensity *Scores    `json:"propensity"`
+	Support    *Support   `json:"support"`
+	Cells      *Cells     `json:"cells"`
+	// CellsAbsent says why there is no positivity table ("" when there is one).
+	CellsAbsent string        `json:"cells_absent,omitempty"`
+	Balance     *BalanceSheet `json:"balance"`
 	// BalanceWeights names the weights behind smd_weighted.
 	BalanceWeights string      `json:"balance_weights"`
 	Trimming       *ReportTrim `json:"trimming"`
@@ -160,14 +167,22 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	r.Propensity = sc
 	r.Support = sc.Support()
 	var cells []*Cells
-	if cols := discreteCovariates(d); len(cols) > 0 {
-		r.Cells = s.Cells(cols...)
+	cellCols := o.Cells
+	copts := CellOptions{Bins: o.Bins}
+	if len(cellCols) == 0 {
+		cellCols = discreteCovariates(d)
+	}
+	if len(cellCols) > 0 {
+		r.Cells = s.CellsWith(copts, cellCols...)
 		if err := r.Cells.Err(); err != nil {
-			return nil, err
+			return nil, fmt.Errorf("cells: %w", err)
 		}
 		cells = append(cells, r.Cells)
+	} else {
+		r.CellsAbsent = "no categorical or 0/1 covariate to define positivity cells by default: name the cell covariates (--cells a,b; continuous ones are cut into --bins quantile bins)"
 	}
-	r.Verdict = sc.Verdict(VerdictOptions{}, cells...)
+	vo := VerdictOptions{Target: o.Estimand}
+	r.Verdict = sc.Verdict(vo, cells...)
 	if err := r.Verdict.Err(); err != nil {
 		return nil, err
 	}
@@ -189,16 +204,16 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		r.Trimming = rt
 		est = tr.Scores
 		var tcells []*Cells
-		if cols := discreteCovariates(tr.Design); len(cols) > 0 {
+		if len(cellCols) > 0 {
 			// The positivity cells of the kept units, by the kept design's rows.
-			c := tr.Cells(cols...)
+			c := tr.Scores.CellsWith(copts, cellCols...)
 			if err := c.Err(); err != nil {
 				return nil, err
 			}
 			tcells = append(tcells, c)
 		}
 		r.trimmedCells = tcells
-		r.VerdictTrimmed = est.Verdict(VerdictOptions{}, tcells...)
+		r.VerdictTrimmed = est.Verdict(vo, tcells...)
 		if err := r.VerdictTrimmed.Err(); err != nil {
 			return nil, err
 		}
@@ -251,6 +266,12 @@ func (r *Report) Err() error {
 		return errors.New("report not built: use BuildReport")
 	}
 	return nil
+}
+
+// GateStatus is what a pipeline gate judges: the grade of the report's
+// estimand in Gate's verdict (see Verdict.Grade).
+func (r *Report) GateStatus() VerdictStatus {
+	return r.Gate().Grade(r.Options.Estimand)
 }
 
 // Gate is the verdict a pipeline gate should judge: the trimmed units' when
@@ -308,9 +329,13 @@ func (r *Report) String() string {
 	if len(r.Verdict.Reasons) > 0 {
 		fmt.Fprintf(&b, " — %s", strings.Join(r.Verdict.Reasons, "; "))
 	}
-	fmt.Fprintf(&b, "\nsupported estimands: %s\n", strings.Join(r.Verdict.Supported, ", "))
+	fmt.Fprintf(&b, "\nsupported estimands: %s; the %s: %s\n", strings.Join(r.Verdict.Supported, ", "), r.Options.Estimand, statusWords(r.Verdict.StatusOf(r.Options.Estimand)))
 	if v := r.VerdictTrimmed; v != nil {
-		fmt.Fprintf(&b, "verdict on the trimmed units: %s; supported estimands there: %s\n", strings.ToUpper(string(v.Status)), strings.Join(v.Supported, ", "))
+		fmt.Fprintf(&b, "verdict on the trimmed units: %s; supported estimands there: %s; the %s: %s\n", strings.ToUpper(string(v.Status)), strings.Join(v.Supported, ", "),
+			r.Options.Estimand, statusWords(v.StatusOf(r.Options.Estimand)))
+	}
+	if r.CellsAbsent != "" {
+		b.WriteString("cells: none (" + r.CellsAbsent + ")\n")
 	}
 	b.WriteString("caution: " + Cautions[0] + "\n")
 	return b.String()

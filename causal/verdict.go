@@ -69,7 +69,8 @@ type VerdictOptions struct {
 	// Default 2, an effective sample size halved (common practice, no source).
 	MaxInflation float64
 	// Permutations of the treatment for the chance calibration (default
-	// 199) and their seed (default 1).
+	// 99: the smallest adjusted p-value is then 0.01, below the default
+	// Alpha) and their seed (default 1).
 	Permutations int
 	Seed         uint64
 }
@@ -133,7 +134,7 @@ func (sc *Scores) verdictDefaults(o VerdictOptions) VerdictOptions {
 		o.MaxInflation = 2
 	}
 	if o.Permutations == 0 {
-		o.Permutations = 199
+		o.Permutations = 99
 	}
 	if o.Seed == 0 {
 		o.Seed = 1
@@ -210,6 +211,25 @@ func (v *Verdict) StatusOf(e Estimand) EstimandStatus {
 		return ""
 	}
 	return v.Estimands[e.String()].Status
+}
+
+// Grade is the verdict for one estimand on the overall scale, for gates:
+// adequate when it is supported, violated when a violation withdraws it,
+// limited otherwise ("" for a failed verdict).
+func (v *Verdict) Grade(e Estimand) VerdictStatus {
+	switch v.StatusOf(e) {
+	case "":
+		return ""
+	case Supported:
+		return Adequate
+	case NotSupported:
+		for _, f := range v.Findings {
+			if f.Violation && f.Effect == Withdraws && f.affects(e) {
+				return Violated
+			}
+		}
+	}
+	return Limited
 }
 
 // judgement is the outcome of the rules on one set of scores and tables.
@@ -305,7 +325,7 @@ func newJudge(sc *Scores, o VerdictOptions, cells []*Cells) *judge {
 	return j
 }
 
-func (j *judge) addStat(name string, fn func(t, e []float64) float64) {
+func (j *judge) addStat(name string, fn func(t, e []float64, sum *scoreSummary) float64) {
 	j.statIndex[name] = len(j.stats)
 	j.stats = append(j.stats, permStat{name, fn})
 }
@@ -329,7 +349,7 @@ func (j *judge) run() *judgement {
 	for r, i := range j.free {
 		eFree[r] = j.e[i]
 	}
-	j.perm = permutationNull(j.d, j.free, eFree, j.stats, j.o.Permutations, j.o.Seed)
+	j.perm = permutationNull(j.d, j.free, eFree, j.stats, j.o.Permutations, j.o.Seed, j.o.Extreme)
 	out := &judgement{status: map[Estimand]EstimandStatus{}, o: j.o}
 	for _, r := range verdictRules {
 		out.findings = append(out.findings, r.find(j)...)
