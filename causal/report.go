@@ -271,6 +271,9 @@ func (r *Report) Err() error {
 // GateStatus is what a pipeline gate judges: the grade of the report's
 // estimand in Gate's verdict (see Verdict.Grade).
 func (r *Report) GateStatus() VerdictStatus {
+	if r.Err() != nil {
+		return ""
+	}
 	return r.Gate().Grade(r.Options.Estimand)
 }
 
