@@ -23,7 +23,7 @@ var Cautions = []string{
 
 // ReportOptions choose what a report estimates.
 type ReportOptions struct {
-	// Estimand: ATE (default), ATT or ATO (ATC is accepted too).
+	// Estimand: ATE (default), ATT, ATC or ATO; the verdict's remedies and the gate judge it.
 	Estimand Estimand
 	// Trim: "none" (default), a symmetric α such as "0.1" (scores kept in
 	// [α, 1−α]; Crump, Hotz, Imbens & Mitnik 2009), or "optimal" (their

@@ -2,6 +2,7 @@ package causal
 
 import (
 	"encoding/json"
+	"runtime"
 	"strings"
 	"testing"
 
@@ -215,3 +216,23 @@ var errTest = testError("test error")
 type testError string
 
 func (e testError) Error() string { return string(e) }
+
+// The verdict does not depend on the number of cores: the permutations are
+// seeded one by one (permRand) and gathered by index.
+func TestVerdictIndependentOfGOMAXPROCS(t *testing.T) {
+	s := Load("../testdata/water_audits.csv").Treat("audit").TreatedLevel("yes").Outcome("litres_per_day").
+		Adjust("district", "income_band", "household_size", "lot_m2", "home_age", "pool", "last_summer_lpd")
+	var out []string
+	for _, procs := range []int{1, 3} {
+		old := runtime.GOMAXPROCS(procs)
+		b, err := json.Marshal(s.Propensity().Verdict(VerdictOptions{}, s.Cells("district", "pool")))
+		runtime.GOMAXPROCS(old)
+		if err != nil {
+			t.Fatal(err)
+		}
+		out = append(out, string(b))
+	}
+	if out[0] != out[1] {
+		t.Error("the verdict JSON differs between GOMAXPROCS 1 and 3")
+	}
+}
