@@ -61,13 +61,28 @@ func (r BalanceRow) VarianceOff() bool {
 //	variance ratio = s1²/s0²                          (Rubin 2001)
 //	KS = max_x |F1(x) − F0(x)|                         (two-sample Kolmogorov–Smirnov statistic)
 //
-// Weighted versions use weighted means m_a = Σwx/Σw, weighted variances
-// Σw(x−m_a)²/(Σw − Σw²/Σw) (Austin & Stuart 2015) and weighted empirical CDFs.
+// Weighted versions use weighted means m_a = Σwx/Σw and weighted empirical
+// CDFs. The weighted SMD keeps the unweighted denominator √((s1² + s0²)/2)
+// (for a 0/1 term the unweighted p_a) of the data before weighting, so that
+// before and after share one scale and a change reflects the means only (the
+// convention of Rosenbaum & Rubin 1985, Am. Statist. 39(1), 33–38, for
+// matched samples, and of Stuart 2010, Statist. Sci. 25(1), 1–21; cited from
+// memory). BalanceOptions.WeightedSD selects instead the weighted variances
+// Σw(x−m_a)²/(Σw − Σw²/Σw) of Austin & Stuart (2015). The weighted variance
+// ratio always uses the weighted variances.
 type BalanceSheet struct {
 	Rows     []BalanceRow
 	Weighted bool
 	Label    string // what the weights are, e.g. "ATE weights"
+	Options  BalanceOptions
 	err      error
+}
+
+// BalanceOptions chooses the denominator of the weighted SMD.
+type BalanceOptions struct {
+	// WeightedSD: the weighted arm variances (Austin & Stuart 2015) rather
+	// than the unweighted pooled SD (the default; see BalanceSheet).
+	WeightedSD bool
 }
 
 // Err returns why the sheet could not be computed, or nil.
@@ -106,10 +121,23 @@ func (s *Study) BalanceWeighted(w []float64, label string) *BalanceSheet {
 	if err != nil {
 		return &BalanceSheet{err: err}
 	}
-	return balanceFor(d, w, label)
+	return balanceForWith(d, w, label, BalanceOptions{})
+}
+
+// BalanceWeightedWith is BalanceWeighted with the SMD denominator chosen by o.
+func (s *Study) BalanceWeightedWith(w []float64, label string, o BalanceOptions) *BalanceSheet {
+	d, err := s.Design()
+	if err != nil {
+		return &BalanceSheet{err: err}
+	}
+	return balanceForWith(d, w, label, o)
 }
 
 func balanceFor(d *Design, w []float64, label string) *BalanceSheet {
+	return balanceForWith(d, w, label, BalanceOptions{})
+}
+
+func balanceForWith(d *Design, w []float64, label string, o BalanceOptions) *BalanceSheet {
 	if w != nil {
 		if len(w) != d.N {
 			return &BalanceSheet{err: fmt.Errorf("balance: %d weights for %d rows", len(w), d.N)}
@@ -129,7 +157,7 @@ func balanceFor(d *Design, w []float64, label string) *BalanceSheet {
 			return &BalanceSheet{err: errors.New("balance: the weights are zero for every unit of one arm")}
 		}
 	}
-	b := &BalanceSheet{Weighted: w != nil, Label: label}
+	b := &BalanceSheet{Weighted: w != nil, Label: label, Options: o}
 	for j := 1; j < d.P; j++ {
 		x := d.Col(j)
 		r := BalanceRow{Term: d.Terms[j].Name, Binary: d.Terms[j].Binary}
@@ -137,6 +165,9 @@ func balanceFor(d *Design, w []float64, label string) *BalanceSheet {
 		r.SMDWeighted, r.VarianceRatioWeighted, r.KSWeighted = math.NaN(), math.NaN(), math.NaN()
 		if w != nil {
 			r.SMDWeighted, r.VarianceRatioWeighted, r.KSWeighted = balanceOne(x, d.T, w, r.Binary)
+			if !o.WeightedSD {
+				r.SMDWeighted = smdUnweightedSD(x, d.T, w, r.Binary)
+			}
 		}
 		b.Rows = append(b.Rows, r)
 	}
@@ -173,6 +204,28 @@ func balanceOne(x, t, w []float64, binary bool) (smd, vr, ks float64) {
 	return smd, vr, ks
 }
 
+// smdUnweightedSD is the weighted SMD over the unweighted pooled SD:
+// (m1 − m0)/√((s1² + s0²)/2) with weighted means m_a and the arms' unweighted
+// variances s_a² (p_a(1 − p_a) for a 0/1 term).
+func smdUnweightedSD(x, t, w []float64, binary bool) float64 {
+	var x1, x0, w1, w0 []float64
+	for i, v := range x {
+		if t[i] == 1 {
+			x1, w1 = append(x1, v), append(w1, w[i])
+		} else {
+			x0, w0 = append(x0, v), append(w0, w[i])
+		}
+	}
+	m1, _ := meanVar(x1, w1)
+	m0, _ := meanVar(x0, w0)
+	p1, v1 := meanVar(x1, nil)
+	p0, v0 := meanVar(x0, nil)
+	if binary {
+		v1, v0 = p1*(1-p1), p0*(1-p0)
+	}
+	return smdValue(m1, m0, v1, v0)
+}
+
 func sortPair(x, w []float64) {
 	idx := make([]int, len(x))
 	for i := range idx {
@@ -197,6 +250,11 @@ func (b *BalanceSheet) String() string {
 	title := "Covariate balance (|SMD| > 0.1 flagged, Austin 2009; variance ratio outside [0.5, 2] flagged, Rubin 2001)"
 	fmt.Fprintln(&s, title)
 	if b.Weighted {
+		if b.Options.WeightedSD {
+			fmt.Fprintln(&s, "  weighted SMD over the weighted arm SDs (Austin & Stuart 2015)")
+		} else {
+			fmt.Fprintln(&s, "  weighted SMD over the unweighted pooled SD, the same denominator as before weighting")
+		}
 		lbl := b.Label
 		if lbl == "" {
 			lbl = "weights"

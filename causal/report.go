@@ -34,6 +34,9 @@ type ReportOptions struct {
 	// continuous ones into quantile bins (default 5).
 	Cells []string
 	Bins  int
+	// Caliper of the nearest-neighbour matching estimate, in SDs of the
+	// logit score (0: none; AustinCaliper, 0.2, is Austin's 2011 advice).
+	Caliper float64
 	// Bootstrap replicates for the primary estimator (0: none) and the seed.
 	Bootstrap int
 	Seed      uint64
@@ -89,8 +92,12 @@ type Report struct {
 	Cautions       []string `json:"cautions"`
 
 	// Results behind the fields, for views.
-	Study        *Study   `json:"-"`
-	Trimmed      *Trimmed `json:"-"`
+	Study   *Study   `json:"-"`
+	Trimmed *Trimmed `json:"-"`
+	// Matching and Strata behind the nearest_neighbour_matching and
+	// subclassification estimates (nil for the ATO).
+	Matching     *Matching `json:"-"`
+	Strata       *Strata   `json:"-"`
 	trimmedCells []*Cells
 	Options      ReportOptions `json:"-"`
 }
@@ -132,7 +139,9 @@ func discreteCovariates(d *Design) []string {
 
 // BuildReport runs the whole analysis: propensity model, support by arm,
 // positivity cells on the discrete covariates, balance before and after the
-// estimand's weights, optional trimming, every estimator of the estimand,
+// estimand's weights, optional trimming, every estimator of the estimand
+// (with nearest-neighbour matching and subclassification for the ATE, ATT
+// and ATC),
 // an optional bootstrap of the primary estimator (AIPW; overlap weights for
 // the ATO) and the verdict. A data or option error is returned as an error
 // naming the column, row or option.
@@ -145,6 +154,9 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	}
 	if o.Bootstrap < 0 {
 		return nil, fmt.Errorf("bootstrap: %d replicates: use 0 (none) or a positive number", o.Bootstrap)
+	}
+	if math.IsNaN(o.Caliper) || math.IsInf(o.Caliper, 0) || o.Caliper < 0 {
+		return nil, fmt.Errorf("caliper %g: use 0 (none) or a positive number of SDs of the logit score, e.g. 0.2", o.Caliper)
 	}
 	rule, trim, err := ParseTrim(o.Trim)
 	if err != nil {
@@ -237,6 +249,18 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		return nil, err
 	}
 	r.Estimates = es.Items
+	if o.Estimand != ATO {
+		// Matching on the logit score and subclassification on its quintiles.
+		r.Matching = est.Match(MatchOptions{Estimand: o.Estimand, Caliper: o.Caliper})
+		r.Strata = est.Subclassify(0)
+		extra := []*Effect{r.Matching.Effect(estCells...), r.Strata.Effect(o.Estimand, estCells...)}
+		for _, e := range extra {
+			if trim {
+				r.Trimmed.mark(e)
+			}
+		}
+		r.Estimates = append(r.Estimates, extra...)
+	}
 	if o.Bootstrap > 0 {
 		ctx := o.Context
 		if ctx == nil {

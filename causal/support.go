@@ -138,11 +138,18 @@ func (sc *Scores) SupportBins(bins int) *Support {
 }
 
 // profile compares rows flagged in mask with the rest, per design term.
-func profile(d *Design, mask []bool) []ProfileRow {
+func profile(d *Design, mask []bool) []ProfileRow { return profileAmong(d, mask, nil) }
+
+// profileAmong is profile restricted to the rows flagged in among (all rows
+// when among is nil): the flagged rows against the other rows of among.
+func profileAmong(d *Design, mask, among []bool) []ProfileRow {
 	var out []ProfileRow
 	for j := 1; j < d.P; j++ {
 		var a, b []float64
 		for i := 0; i < d.N; i++ {
+			if among != nil && !among[i] {
+				continue
+			}
 			v := d.X[i*d.P+j]
 			if mask[i] {
 				a = append(a, v)

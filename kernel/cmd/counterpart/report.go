@@ -35,6 +35,7 @@ func reportCommand() *command {
 		trim := fs.String("trim", "none", "trimming before estimation: none, a symmetric α such as 0.1 (scores kept in [α, 1−α]), or optimal (Crump et al. 2009)")
 		cellsFlag := fs.String("cells", "", "comma-separated covariates that define the positivity cells (default: the categorical and 0/1 covariates, at most four)")
 		bins := fs.Int("bins", 5, "quantile bins for continuous cell covariates")
+		caliper := fs.Float64("caliper", 0, "caliper of the nearest_neighbour_matching estimate in SDs of the logit score (0: none; 0.2 is Austin 2011's advice)")
 		boot := fs.Int("bootstrap", 0, "bootstrap replicates of the primary estimator — AIPW for ATE, ATT and ATC, overlap weights for ATO — refitting the propensity (and outcome) models in each (0: none)")
 		seed := fs.Uint64("seed", 1, "seed of the bootstrap")
 		jsonOut := fs.String("json", "", "write the report JSON to FILE, or - for stdout")
@@ -100,7 +101,10 @@ func reportCommand() *command {
 		}
 		ctx, stop := signalContext()
 		defer stop()
-		opts := causal.ReportOptions{Estimand: est, Trim: *trim, Cells: cellCols, Bins: *bins, Bootstrap: *boot, Seed: *seed, Context: ctx}
+		if *caliper < 0 {
+			return fmt.Errorf("--caliper %g: use 0 (none) or a positive number of SDs of the logit score, e.g. 0.2", *caliper)
+		}
+		opts := causal.ReportOptions{Estimand: est, Trim: *trim, Cells: cellCols, Bins: *bins, Caliper: *caliper, Bootstrap: *boot, Seed: *seed, Context: ctx}
 		if *boot > 0 {
 			update, finish := kernel.Progress("bootstrap")
 			opts.Progress = update
