@@ -92,7 +92,7 @@ func TestBadInputTreatment(t *testing.T) {
 	if err != nil || d.Treated != 2 || d.Control != 3 {
 		t.Fatalf("TreatedLevel: %v %+v", err, d)
 	}
-	wantErr(t, s.TreatedLevel("maybe").Err(), `"maybe" is not one of`)
+	wantErr(t, s.TreatedLevel("maybe").Err(), `.TreatedLevel("maybe") names a value it does not have`)
 	// true/false needs nothing.
 	d, err = studyFrom(t, "x,t\n1,false\n2,true\n3,false\n4,true\n").Treat("t").Adjust("x").Design()
 	if err != nil || d.Treated != 2 {

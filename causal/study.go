@@ -4,7 +4,9 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"regexp"
 	"sort"
+	"strconv"
 	"strings"
 	"sync"
 )
@@ -269,7 +271,7 @@ func (s *Study) resolve() (*Design, error) {
 		return nil, errors.New("no data loaded")
 	}
 	if s.treat == "" {
-		return nil, errors.New("no treatment column: call .Treat(\"column\")")
+		return nil, settingErr("Treat", "column", "no treatment column: name it with ", "")
 	}
 	seen := map[string]string{s.treat: "treatment"}
 	if s.outcome != "" {
@@ -281,7 +283,7 @@ func (s *Study) resolve() (*Design, error) {
 	for _, c := range s.covariates {
 		if r, dup := seen[c]; dup {
 			if r == "covariate" {
-				return nil, fmt.Errorf("covariate %q is listed twice in Adjust", c)
+				return nil, fmt.Errorf("covariate %q is listed twice among the covariates", c)
 			}
 			return nil, fmt.Errorf("column %q is the %s and cannot also be a covariate", c, r)
 		}
@@ -329,8 +331,8 @@ func (s *Study) resolve() (*Design, error) {
 		}
 	}
 	if nInc > 0 && !s.dropIncomp {
-		return nil, fmt.Errorf("missing values in %s: %d row%s incomplete; fill them in, or call .DropIncomplete() to drop those rows (the report then says how many were dropped)",
-			strings.Join(miss, ", "), nInc, plural(nInc, " is", "s are"))
+		return nil, settingErr("DropIncomplete", "", fmt.Sprintf("missing values in %s: %d row%s incomplete; fill them in, or use ",
+			strings.Join(miss, ", "), nInc, plural(nInc, " is", "s are")), " to drop those rows (the report then says how many were dropped)")
 	}
 	rows := make([]int, 0, n-nInc)
 	for i := 0; i < n; i++ {
@@ -464,6 +466,12 @@ func (s *Study) column(name, role string) (*Column, error) {
 	return c, nil
 }
 
+// decimalText is the grammar of a number typed as an option (a treated
+// level, a trimming α): an optional sign,
+// digits with an optional decimal point, an optional exponent (no hex, no
+// underscores, no Inf or NaN).
+var decimalText = regexp.MustCompile(`^[+-]?([0-9]+\.?[0-9]*|\.[0-9]+)([eE][+-]?[0-9]+)?$`)
+
 func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 	t := make([]float64, len(rows))
 	var levels []string
@@ -487,9 +495,10 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 		}
 		if len(set) == 2 && treated != "" {
 			// Two numeric codes with the treated one named.
-			var tv float64
-			if _, err := fmt.Sscan(treated, &tv); err != nil || !set[tv] {
-				return nil, fmt.Errorf("treatment %q: treated level %q is not one of its values %s", c.Name, treated, strings.Join(levels, ", "))
+			// The whole text must be a decimal number ("1abc" is not 1).
+			tv, err := strconv.ParseFloat(treated, 64)
+			if err != nil || !decimalText.MatchString(treated) || !set[tv] {
+				return nil, settingErr("TreatedLevel", treated, fmt.Sprintf("treatment %q: ", c.Name), " names a value it does not have; its values are "+strings.Join(levels, ", "))
 			}
 			for k, i := range rows {
 				if c.Num[i] == tv {
@@ -515,7 +524,7 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 				if a == "false" && b == "true" {
 					tl = levels[1]
 				} else {
-					return nil, fmt.Errorf("treatment %q has the labels %q and %q: say which one is treated with .TreatedLevel(%q) (or --treated-level)", c.Name, levels[0], levels[1], levels[1])
+					return nil, settingErr("TreatedLevel", levels[1], fmt.Sprintf("treatment %q has the labels %q and %q: say which one is treated with ", c.Name, levels[0], levels[1]), "")
 				}
 			}
 			code := int32(-1)
@@ -525,7 +534,7 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 				}
 			}
 			if code < 0 || !present[code] {
-				return nil, fmt.Errorf("treatment %q: treated level %q is not one of its values %q, %q", c.Name, tl, levels[0], levels[1])
+				return nil, settingErr("TreatedLevel", tl, fmt.Sprintf("treatment %q: ", c.Name), fmt.Sprintf(" names a value it does not have; its values are %q, %q", levels[0], levels[1]))
 			}
 			for k, i := range rows {
 				if c.Codes[i] == code {
@@ -545,6 +554,6 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 		}
 		return nil, fmt.Errorf("treatment %q has more than two values (%s): it must be binary; recode it to two levels", c.Name, strings.Join(shown, ", "))
 	default:
-		return nil, fmt.Errorf("treatment %q has the values %s: use 0/1, or name the treated value with .TreatedLevel", c.Name, strings.Join(levels, " and "))
+		return nil, settingErr("TreatedLevel", "", fmt.Sprintf("treatment %q has the values %s: use 0/1, or name the treated value with ", c.Name, strings.Join(levels, " and ")), "")
 	}
 }

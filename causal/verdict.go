@@ -195,10 +195,11 @@ func (v *Verdict) Err() error {
 	return v.err
 }
 
-// MarshalJSON writes the verdict, or {"error": "..."} when there is none.
+// MarshalJSON writes the verdict, or {"status": "failed", "error": "..."}
+// when there is none.
 func (v *Verdict) MarshalJSON() ([]byte, error) {
 	if err := v.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	type plain Verdict
 	return json.Marshal((*plain)(v))

@@ -191,7 +191,7 @@ func TestVerdictDemoScenario(t *testing.T) {
 func TestVerdictErrorJSONAndGrade(t *testing.T) {
 	v := (&Scores{err: errTest}).Verdict(VerdictOptions{})
 	b, err := json.Marshal(v)
-	if err != nil || string(b) != `{"error":"test error"}` {
+	if err != nil || string(b) != `{"status":"failed","error":"test error"}` {
 		t.Errorf("failed verdict JSON %s %v", b, err)
 	}
 	s := Load("../testdata/water_audits.csv").Treat("audit").TreatedLevel("yes").Outcome("litres_per_day").

@@ -440,7 +440,7 @@ func (w *Weights) String() string {
 // weights, so the size stays bounded).
 func (w *Weights) MarshalJSON() ([]byte, error) {
 	if err := w.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	type arm struct {
 		N   int `json:"n"`
