@@ -55,9 +55,14 @@ func TestBadInputColumns(t *testing.T) {
 	wantErr(t, err, `unknown column "y"`, "columns are: x, z, t")
 	err = studyFrom(t, base).Treat("T").Err()
 	wantErr(t, err, `did you mean "t"`)
-	// Non-numeric value in a numeric column names the row and the column.
+	// A column with a non-number is text; when that makes it unusable, the
+	// message names the column, the row and the value.
 	err = studyFrom(t, "x,t\n1,0\n2,1\n3x,0\n4,1\n5,0\n").Treat("t").Adjust("x").Err()
-	wantErr(t, err, `column "x", row 3`, `"3x"`)
+	wantErr(t, err, `covariate "x"`, `row 3 holds "3x"`)
+	err = studyFrom(t, "x,t\n1,0\n2,1\n3x,0\n4,1\n5,0\n").Treat("x").Outcome("t").Err()
+	wantErr(t, err, `treatment "x" has more than two values`)
+	err = studyFrom(t, "x,t\n1,0\n2,1\n3x,0\n4,1\n5,0\n").Treat("t").Outcome("x").Err()
+	wantErr(t, err, `outcome "x" is not numeric`, `row 3 holds "3x"`)
 	// NaN and Inf text.
 	err = studyFrom(t, "x,t\n1,0\nNaN,1\n3,0\n4,1\n").Treat("t").Adjust("x").Err()
 	wantErr(t, err, "row 2", "not a finite number")

@@ -5,7 +5,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"strconv"
 	"strings"
 )
 
@@ -112,9 +111,9 @@ func ParseTrim(s string) (TrimRule, bool, error) {
 	case "optimal", "crump":
 		return CrumpOptimal(), true, nil
 	}
-	a, err := strconv.ParseFloat(s, 64)
-	if err != nil || !decimalText.MatchString(s) || a < 0 || a >= 0.5 {
-		return TrimRule{}, false, fmt.Errorf("trim %q: use none, optimal, or a number α with 0 ≤ α < 0.5 (scores kept in [α, 1−α]), e.g. 0.1", s)
+	a, kind := parseNumber(strings.TrimSpace(s)) // the data-file grammar: no 0x1p-3 or 1_0
+	if kind != numOK || a < 0 || a >= 0.5 {
+		return TrimRule{}, false, fmt.Errorf("trim %s: use none, optimal, or a number α with 0 ≤ α < 0.5 (scores kept in [α, 1−α]), e.g. 0.1", quoteValue(s))
 	}
 	if a == 0 {
 		return TrimRule{}, false, nil

@@ -40,7 +40,7 @@ func MethodName(setting, value string) string {
 	case value == "":
 		return "." + setting
 	}
-	return fmt.Sprintf(".%s(%q)", setting, value)
+	return fmt.Sprintf(".%s(%s)", setting, quoteValue(value))
 }
 
 // settingErr builds a SettingError: the message is before, the setting, after.

@@ -66,7 +66,7 @@ func ParseEstimand(s string) (Estimand, error) {
 			return e, nil
 		}
 	}
-	return 0, fmt.Errorf("unknown estimand %q: use ATE, ATT, ATC or ATO", s)
+	return 0, fmt.Errorf("unknown estimand %s: use ATE, ATT, ATC or ATO", quoteValue(s))
 }
 
 func checkEstimand(e Estimand) error {

@@ -43,6 +43,8 @@ func reportCommand() *command {
 		htmlOut := fs.String("html", "", "write a self-contained HTML report to FILE")
 		failOn := fs.String("fail-on", "", "exit 3 when the verdict for --estimand is this bad: violated (withdrawn by a violation), or limited (not supported, or supported with caution); with --trim the trimmed units' verdict is judged")
 		dropIncomplete := fs.Bool("drop-incomplete", false, "drop rows with a missing value in a role column (counted in the report) instead of stopping")
+		delimiter := fs.String("delimiter", ",", "field separator of --data: one character such as , ; | or the word tab")
+		maxField := fs.Int("max-field", causal.DefaultMaxField, "longest field of --data accepted, in bytes")
 		partial := fs.Bool("partial-on-interrupt", false, "on Ctrl-C during --bootstrap, write the outputs with the replicates done, the bootstrap marked partial (default: write nothing)")
 		pos, err := parse(c, fs, args)
 		if err != nil {
@@ -97,6 +99,13 @@ func reportCommand() *command {
 		if _, err := os.Stat(*data); err != nil {
 			return fmt.Errorf("--data %s: %v", *data, errors.Unwrap(err))
 		}
+		delim, err := causal.ParseDelimiter(*delimiter)
+		if err != nil {
+			return fmt.Errorf("--%v", err)
+		}
+		if *maxField < 1 {
+			return fmt.Errorf("--max-field %d: use a positive number of bytes (default %d)", *maxField, causal.DefaultMaxField)
+		}
 		if err := checkOutputPaths(*data, *jsonOut, *htmlOut); err != nil {
 			return err
 		}
@@ -109,7 +118,7 @@ func reportCommand() *command {
 			defer finish()
 		}
 		r, err := buildInterruptible(ctx, *partial, func() (*causal.Report, error) {
-			s := causal.Load(*data).Treat(*treatment).Outcome(*outcome).Adjust(covs...)
+			s := causal.LoadWith(*data, causal.ReadOptions{Delimiter: delim, MaxField: *maxField}).Treat(*treatment).Outcome(*outcome).Adjust(covs...)
 			if *treatedLevel != "" {
 				s = s.TreatedLevel(*treatedLevel)
 			}
