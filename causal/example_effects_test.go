@@ -165,6 +165,7 @@ func ExampleVerdict_remedies() {
 	// target_att: drops 0 treated, 0 control
 	// overlap_weights: drops 0 treated, 0 control
 	// trim: drops 0 treated, 554 control
+	// match: drops 0 treated, 552 control
 }
 
 func ExampleScores_WithWeights() {

@@ -425,7 +425,9 @@ func (sc *Scores) unsupported(target Estimand, cells []*Cells) string {
 // re-judged before it is offered, with what it costs: the units it drops,
 // who they are, and the effective sample sizes left.
 type Remedy struct {
-	// Action is "none", "target_att", "target_atc", "overlap_weights" or "trim".
+	// Action is "none", "target_att", "target_atc", "overlap_weights",
+	// "trim", "match" (nearest-neighbour matching within a caliper) or
+	// "subclassify" (Strata.Remedy; not tried by the verdict).
 	Action   string `json:"action"`
 	Estimand string `json:"estimand"`
 	// Status is the estimand's status after the remedy, by the same rules.
@@ -558,10 +560,12 @@ func (sc *Scores) remedies(jd *judgement, cells []*Cells) (out []Remedy, notes [
 		out = append(out, r)
 	}
 	if sc.defE == nil && sc.trimAlpha == 0 {
-		if r, note := sc.trimRemedy(jd, cells); r != nil {
-			out = append(out, *r)
-		} else if note != "" {
-			notes = append(notes, note)
+		for _, try := range []func(*judgement, []*Cells) (*Remedy, string){sc.trimRemedy, sc.matchRemedy} {
+			if r, note := try(jd, cells); r != nil {
+				out = append(out, *r)
+			} else if note != "" {
+				notes = append(notes, note)
+			}
 		}
 	}
 	if len(out) == 0 {
@@ -597,17 +601,12 @@ func (sc *Scores) trimRemedy(jd *judgement, cells []*Cells) (*Remedy, string) {
 	if tr.Err() != nil || tr.DroppedTreated+tr.DroppedControl == 0 {
 		return nil, ""
 	}
-	var tcells []*Cells
-	for _, c := range cells {
-		tc := cellsForDesignWith(sc.Design.study, tr.Design, c.Columns, c.Options)
-		if tc.Err() != nil {
-			return nil, ""
-		}
-		tcells = append(tcells, tc)
-	}
 	to := o
 	to.Extreme = 0 // the trimmed scores' own default (α)
-	tj := tr.Scores.judgement(to, tcells)
+	tj := sc.rejudge(tr.Design, tr.Scores, to, cells)
+	if tj == nil {
+		return nil, ""
+	}
 	st := tj.status[target]
 	if st == NotSupported || (jd.status[target] == SupportedWithCaution && st != Supported) {
 		return nil, fmt.Sprintf("trimming to scores in [%.3f, %.3f] by %s was tried: re-judged on the %d kept units the %s would still be %s (%s)",
@@ -625,6 +624,63 @@ func (sc *Scores) trimRemedy(jd *judgement, cells []*Cells) (*Remedy, string) {
 		r.ESSTreated, r.ESSControl = Num(math.NaN()), Num(math.NaN())
 	}
 	return r, ""
+}
+
+// rejudge judges a remedy's population (design sub, scores ks from
+// keptPopulation) by the same rules, with the positivity tables rebuilt on
+// its units; nil when a table cannot be rebuilt.
+func (sc *Scores) rejudge(sub *Design, ks *Scores, o VerdictOptions, cells []*Cells) *judgement {
+	var tcells []*Cells
+	for _, c := range cells {
+		tc := cellsForDesignWith(sc.Design.study, sub, c.Columns, c.Options)
+		if tc.Err() != nil {
+			return nil
+		}
+		tcells = append(tcells, tc)
+	}
+	return ks.judgement(o, tcells)
+}
+
+// matchRemedy tries nearest-neighbour matching within Austin's (2011)
+// caliper of 0.2 SD of the logit score for the target (ATT, ATC or ATE):
+// the units that find no match within the caliper leave the analysis, and
+// the matched population is re-judged by the same rules, judged by the
+// scores that defined it. It returns the remedy when the target is then
+// supported (or supported where it was only cautioned), else a note of what
+// was tried.
+func (sc *Scores) matchRemedy(jd *judgement, cells []*Cells) (*Remedy, string) {
+	target := jd.o.Target
+	if target == ATO {
+		return nil, ""
+	}
+	m := sc.Match(MatchOptions{Estimand: target, Caliper: AustinCaliper})
+	if m.Err() != nil || m.UnmatchedTreated+m.UnmatchedControl == 0 {
+		return nil, ""
+	}
+	d := sc.Design
+	rows := make([]int, 0, d.N)
+	for i, un := range m.unmatched {
+		if !un {
+			rows = append(rows, i)
+		}
+	}
+	sub, ks, _ := sc.keptPopulation(rows)
+	if ks.Err() != nil || sub.Treated == 0 || sub.Control == 0 {
+		return nil, ""
+	}
+	tj := sc.rejudge(sub, ks, jd.o, cells)
+	if tj == nil {
+		return nil, ""
+	}
+	st := tj.status[target]
+	if st == NotSupported || (jd.status[target] == SupportedWithCaution && st != Supported) {
+		return nil, fmt.Sprintf("matching within %g SD of the logit score was tried: %d treated and %d controls find no match; re-judged on the %d matched units the %s would still be %s (%s)",
+			AustinCaliper, m.UnmatchedTreated, m.UnmatchedControl, sub.N, target, statusWords(st), strings.Join(tj.codes(target, Withdraws, Caution), ", "))
+	}
+	r := m.Remedy()
+	r.Status = st
+	r.Text += fmt.Sprintf("; re-judged on the %d matched units by the same rules the %s is %s there", sub.N, target, statusWords(st))
+	return &r, ""
 }
 
 func countMask(m []bool) int {

@@ -81,7 +81,7 @@ func loopCorpus(t *testing.T) []corpusCase {
 // water scenario with several covariate sets, the scenario generators with
 // built-in overlap problems), applying the recommended remedy and judging
 // the result again with the same rules supports the estimand the remedy
-// names (every remedy offered is checked); a trimmed population is never offered another trim; the refit on
+// names (every remedy offered is checked); a trimmed or matched population is never offered another trim or match; the refit on
 // the kept units does not re-trigger the extreme-score rule that made it.
 func TestVerdictClosedLoop(t *testing.T) {
 	for _, c := range loopCorpus(t) {
@@ -129,6 +129,28 @@ func TestVerdictClosedLoop(t *testing.T) {
 					}
 				}
 				t.Logf("%-32s   trim α %.3f drops %d/%d → ATE %s", c.name, float64(r.Alpha), r.DropsTreated, r.DropsControl, after)
+			case "match":
+				e, _ := ParseEstimand(r.Estimand)
+				m := sc.Match(MatchOptions{Estimand: e, Caliper: AustinCaliper})
+				var rows []int
+				for i, un := range m.unmatched {
+					if !un {
+						rows = append(rows, i)
+					}
+				}
+				sub, ks, _ := sc.keptPopulation(rows)
+				var mcells []*Cells
+				for _, cl := range cells {
+					mcells = append(mcells, cellsForDesignWith(c.study, sub, cl.Columns, cl.Options))
+				}
+				mv := ks.Verdict(VerdictOptions{Target: e}, mcells...)
+				after = mv.StatusOf(e)
+				for _, rr := range mv.Remedies {
+					if rr.Action == "trim" || rr.Action == "match" {
+						t.Errorf("%s: the matched population is offered another %s: %s", c.name, rr.Action, rr.Text)
+					}
+				}
+				t.Logf("%-32s   match drops %d/%d → %s %s", c.name, r.DropsTreated, r.DropsControl, e, after)
 			default:
 				t.Fatalf("%s: unknown action %q", c.name, r.Action)
 			}

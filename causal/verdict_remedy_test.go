@@ -47,8 +47,14 @@ func TestVerdictRemediesWater(t *testing.T) {
 	if v.Status != Violated || strings.Join(v.Supported, ",") != "ATT,ATO" {
 		t.Fatalf("status %s, supported %v", v.Status, v.Supported)
 	}
-	if len(v.Remedies) != 3 || v.Remedies[0].Action != "target_att" || v.Remedies[1].Action != "overlap_weights" || v.Remedies[2].Action != "trim" {
+	if len(v.Remedies) != 4 || v.Remedies[0].Action != "target_att" || v.Remedies[1].Action != "overlap_weights" || v.Remedies[2].Action != "trim" || v.Remedies[3].Action != "match" {
 		t.Fatalf("remedies %+v", v.Remedies)
+	}
+	// Matching within 0.2 SD of the logit: the harbour controls have no
+	// treated unit within the caliper and leave the analysis.
+	if m := v.Remedies[3]; m.DropsTreated != 0 || m.DropsControl < 552 || m.Who[0].Term != "district=harbour" || m.Status != Supported ||
+		!strings.Contains(m.Text, fmt.Sprintf("%d controls find no match", m.DropsControl)) || !strings.Contains(m.Text, "re-judged on the") {
+		t.Errorf("match remedy %+v", m)
 	}
 	att := v.Remedies[0]
 	if att.Unrepresented < 552 || att.DropsTreated+att.DropsControl != 0 || att.Who[0].Term != "district=harbour" || !strings.Contains(att.WhoText, "district=harbour") {
