@@ -4,7 +4,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"sort"
 	"strings"
 
 	"gonum.org/v1/gonum/stat"
@@ -129,35 +128,87 @@ func balanceFor(d *Design, w []float64, label string) *BalanceSheet {
 			return &BalanceSheet{err: errors.New("balance: the weights are zero for every unit of one arm")}
 		}
 	}
-	b := &BalanceSheet{Weighted: w != nil, Label: label}
-	for j := 1; j < d.P; j++ {
-		x := d.Col(j)
-		r := BalanceRow{Term: d.Terms[j].Name, Binary: d.Terms[j].Binary}
-		r.SMD, r.VarianceRatio, r.KS = balanceOne(x, d.T, nil, r.Binary)
-		r.SMDWeighted, r.VarianceRatioWeighted, r.KSWeighted = math.NaN(), math.NaN(), math.NaN()
-		if w != nil {
-			r.SMDWeighted, r.VarianceRatioWeighted, r.KSWeighted = balanceOne(x, d.T, w, r.Binary)
+	b := &BalanceSheet{Weighted: w != nil, Label: label, Rows: make([]BalanceRow, d.P-1)}
+	// One column per task, columns in parallel (each computed by one worker
+	// in row order, so the result does not depend on the number of cores).
+	scratch := make([]*balanceScratch, columnWorkers(d.P-1, d.N, balanceScratchBytes))
+	parallelColumns(d.P-1, len(scratch), func(worker, k int) {
+		if scratch[worker] == nil {
+			scratch[worker] = newBalanceScratch(d.N, w != nil)
 		}
-		b.Rows = append(b.Rows, r)
-	}
+		b.Rows[k] = balanceColumn(d, k+1, w, scratch[worker])
+	})
 	return b
 }
 
-func balanceOne(x, t, w []float64, binary bool) (smd, vr, ks float64) {
-	var x1, x0, w1, w0 []float64
-	for i, v := range x {
-		wi := 1.0
-		if w != nil {
-			wi = w[i]
-		}
-		if t[i] == 1 {
-			x1 = append(x1, v)
-			w1 = append(w1, wi)
+// balanceScratchBytes is the scratch memory of one balance worker per row.
+const balanceScratchBytes = 5*8 + 2*4
+
+// balanceScratch holds one worker's buffers, reused across columns: the
+// column split by arm (treated first), its weights, and the sort buffers.
+type balanceScratch struct {
+	x, w, ws   []float64
+	keys, tmpK []uint64
+	idx, tmpI  []int32
+}
+
+func newBalanceScratch(n int, weighted bool) *balanceScratch {
+	s := &balanceScratch{x: make([]float64, n), keys: make([]uint64, n), tmpK: make([]uint64, n)}
+	if weighted {
+		s.w, s.ws = make([]float64, n), make([]float64, n)
+		s.idx, s.tmpI = make([]int32, n), make([]int32, n)
+	}
+	return s
+}
+
+// balanceColumn is the balance row of design column j.
+func balanceColumn(d *Design, j int, w []float64, s *balanceScratch) BalanceRow {
+	r := BalanceRow{Term: d.Terms[j].Name, Binary: d.Terms[j].Binary}
+	n1 := d.Treated
+	x1, x0 := s.x[:n1], s.x[n1:d.N]
+	var w1, w0 []float64
+	if w != nil {
+		w1, w0 = s.w[:n1], s.w[n1:d.N]
+	}
+	a, c := 0, n1
+	nan := false
+	for i := 0; i < d.N; i++ {
+		v := d.X[i*d.P+j]
+		nan = nan || v != v
+		k := c
+		if d.T[i] == 1 {
+			k = a
+			a++
 		} else {
-			x0 = append(x0, v)
-			w0 = append(w0, wi)
+			c++
+		}
+		s.x[k] = v
+		if w != nil {
+			s.w[k] = w[i]
 		}
 	}
+	r.SMD, r.VarianceRatio = smdRatio(x1, x0, nil, nil, r.Binary)
+	r.SMDWeighted, r.VarianceRatioWeighted, r.KSWeighted = math.NaN(), math.NaN(), math.NaN()
+	if w != nil {
+		r.SMDWeighted, r.VarianceRatioWeighted = smdRatio(x1, x0, w1, w0, r.Binary)
+	}
+	if nan { // as stat.KolmogorovSmirnov
+		r.KS = math.NaN()
+		return r
+	}
+	// Each arm sorted once (stably, with its weights carried along); the
+	// order serves the unweighted and the weighted KS statistic.
+	ws1, ws0 := sortArm(x1, w1, s, 0), sortArm(x0, w0, s, n1)
+	r.KS = stat.KolmogorovSmirnov(x1, nil, x0, nil)
+	if w != nil {
+		r.KSWeighted = stat.KolmogorovSmirnov(x1, ws1, x0, ws0)
+	}
+	return r
+}
+
+// smdRatio is the SMD and variance ratio of one term between the arms
+// (weights nil: unweighted; see BalanceSheet for the formulas).
+func smdRatio(x1, x0, w1, w0 []float64, binary bool) (smd, vr float64) {
 	m1, v1 := meanVar(x1, w1)
 	m0, v0 := meanVar(x0, w0)
 	vr = math.NaN()
@@ -166,26 +217,36 @@ func balanceOne(x, t, w []float64, binary bool) (smd, vr, ks float64) {
 	} else if v0 > 0 {
 		vr = v1 / v0
 	}
-	smd = smdValue(m1, m0, v1, v0)
-	sortPair(x1, w1)
-	sortPair(x0, w0)
-	ks = stat.KolmogorovSmirnov(x1, w1, x0, w0)
-	return smd, vr, ks
+	return smdValue(m1, m0, v1, v0), vr
 }
 
-func sortPair(x, w []float64) {
-	idx := make([]int, len(x))
-	for i := range idx {
-		idx[i] = i
+// sortArm sorts x in place (radixSort of floatKey) and, when w is given,
+// returns w in the same order in s.ws[off:off+len(x)].
+func sortArm(x, w []float64, s *balanceScratch, off int) []float64 {
+	n := len(x)
+	keys := s.keys[:n]
+	for i, v := range x {
+		keys[i] = floatKey(v)
 	}
-	sort.Slice(idx, func(a, b int) bool { return x[idx[a]] < x[idx[b]] })
-	xs := make([]float64, len(x))
-	ws := make([]float64, len(x))
-	for k, i := range idx {
-		xs[k], ws[k] = x[i], w[i]
+	var idx []int32
+	if w != nil {
+		idx = s.idx[:n]
+		for i := range idx {
+			idx[i] = int32(i)
+		}
 	}
-	copy(x, xs)
-	copy(w, ws)
+	keys, idx = radixSort(keys, idx, s.tmpK[:n], s.tmpI[:min(n, len(s.tmpI))])
+	for i, k := range keys {
+		x[i] = keyFloat(k)
+	}
+	if w == nil {
+		return nil
+	}
+	ws := s.ws[off : off+n]
+	for i, k := range idx {
+		ws[i] = w[k]
+	}
+	return ws
 }
 
 // String is the terminal view.
