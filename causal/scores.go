@@ -121,7 +121,13 @@ func (s *Study) Propensity(opts ...FitOption) *Scores {
 	for _, f := range opts {
 		f(&o)
 	}
-	return propensityFor(d, o)
+	key := s.fitKey(d, o)
+	o.warm = readFitStart(s.fitDir, key, d.P)
+	sc := propensityFor(d, o)
+	if sc.err == nil && sc.Converged && len(sc.Separation) == 0 {
+		writeFitStart(s.fitDir, key, sc.beta)
+	}
+	return sc
 }
 
 func propensityFor(d *Design, o logitOptions) *Scores {
@@ -226,7 +232,11 @@ func propensityFor(d *Design, o logitOptions) *Scores {
 		}
 		sc.Converged = false
 	} else {
-		fit, err := fitLogistic(cur.X, cur.N, cur.P, cur.T, nil, nil, o)
+		var start []float64
+		if cur == d && len(o.warm) == d.P {
+			start = o.warm
+		}
+		fit, err := fitLogistic(cur.X, cur.N, cur.P, cur.T, nil, start, o)
 		if err != nil {
 			sc.err = fmt.Errorf("propensity model: %w", err)
 			return sc
