@@ -35,6 +35,10 @@ type ReportOptions struct {
 	// Context cancels the bootstrap; Progress reports its replicates.
 	Context  context.Context
 	Progress func(done, total int)
+	// Stage, when set, is called with the name of each stage as it starts
+	// (design, propensity, support, cells, verdict, trimming, balance,
+	// estimates, bootstrap) and with "" when the report is built.
+	Stage func(name string)
 }
 
 // ReportData counts the rows.
@@ -143,6 +147,12 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	if err != nil {
 		return nil, err
 	}
+	stage := o.Stage
+	if stage == nil {
+		stage = func(string) {}
+	}
+	defer stage("")
+	stage("design")
 	d, err := s.Design()
 	if err != nil {
 		return nil, err
@@ -150,6 +160,7 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	if d.Y == nil {
 		return nil, errors.New("no outcome column: name one (Outcome / --outcome)")
 	}
+	stage("propensity")
 	sc := s.Propensity()
 	if err := sc.Err(); err != nil {
 		return nil, err
@@ -158,8 +169,10 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	r.Data = ReportData{Rows: d.RowsTotal, RowsUsed: d.N, RowsDropped: d.RowsDropped, Treated: d.Treated, Control: d.Control}
 	r.Roles = d.Roles()
 	r.Propensity = sc
+	stage("support")
 	r.Support = sc.Support()
 	var cells []*Cells
+	stage("cells")
 	if cols := discreteCovariates(d); len(cols) > 0 {
 		r.Cells = s.Cells(cols...)
 		if err := r.Cells.Err(); err != nil {
@@ -167,12 +180,14 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		}
 		cells = append(cells, r.Cells)
 	}
+	stage("verdict")
 	r.Verdict = sc.Verdict(VerdictOptions{}, cells...)
 	if err := r.Verdict.Err(); err != nil {
 		return nil, err
 	}
 	est := sc
 	if trim {
+		stage("trimming")
 		tr := sc.Trim(rule)
 		if err := tr.Err(); err != nil {
 			return nil, fmt.Errorf("trim %s: %w", o.Trim, err)
@@ -203,6 +218,7 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 			return nil, err
 		}
 	}
+	stage("balance")
 	w := est.Weights(o.Estimand)
 	if err := w.Err(); err != nil {
 		// Weights cannot be formed (e.g. scores of 0 or 1 for an estimand
@@ -217,12 +233,14 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	if trim {
 		estCells = r.trimmedCells
 	}
+	stage("estimates")
 	es := est.Effects(o.Estimand, estCells...)
 	if err := es.Err(); err != nil {
 		return nil, err
 	}
 	r.Estimates = es.Items
 	if o.Bootstrap > 0 {
+		stage("bootstrap")
 		ctx := o.Context
 		if ctx == nil {
 			ctx = context.Background()
