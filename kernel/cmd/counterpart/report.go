@@ -39,6 +39,7 @@ func reportCommand() *command {
 		htmlOut := fs.String("html", "", "write a self-contained HTML report to FILE")
 		failOn := fs.String("fail-on", "", "exit 3 when the verdict is this bad: violated, or limited (limited or violated); with --trim the verdict on the trimmed units is judged")
 		dropIncomplete := fs.Bool("drop-incomplete", false, "drop rows with a missing value in a role column (counted in the report) instead of stopping")
+		verbose := fs.Bool("verbose", false, "print the time each stage took on standard error")
 		pos, err := parse(c, fs, args)
 		if err != nil {
 			return err
@@ -78,6 +79,9 @@ func reportCommand() *command {
 		if _, err := os.Stat(*data); err != nil {
 			return fmt.Errorf("--data %s: %v", *data, errors.Unwrap(err))
 		}
+		clock := newStageClock(*verbose)
+		defer clock.finish()
+		clock.start("reading")
 		s := causal.Load(*data).Treat(*treatment).Outcome(*outcome).Adjust(covs...)
 		if *treatedLevel != "" {
 			s = s.TreatedLevel(*treatedLevel)
@@ -87,7 +91,7 @@ func reportCommand() *command {
 		}
 		ctx, stop := signalContext()
 		defer stop()
-		opts := causal.ReportOptions{Estimand: est, Trim: *trim, Bootstrap: *boot, Seed: *seed, Context: ctx}
+		opts := causal.ReportOptions{Estimand: est, Trim: *trim, Bootstrap: *boot, Seed: *seed, Context: ctx, Stage: clock.start}
 		if *boot > 0 {
 			update, finish := kernel.Progress("bootstrap")
 			opts.Progress = update
@@ -97,6 +101,7 @@ func reportCommand() *command {
 		if err != nil {
 			return err
 		}
+		clock.start("writing")
 		if *jsonOut != "" {
 			b, err := json.MarshalIndent(r, "", "  ")
 			if err != nil {

@@ -1,0 +1,67 @@
+package main
+
+import (
+	"fmt"
+	"io"
+	"os"
+	"strings"
+	"time"
+)
+
+// stageClock follows the stages of a long command: on a terminal it shows
+// the current stage on one line of standard error (cleared at the end), and
+// with --verbose it prints one line with the time of every stage.
+type stageClock struct {
+	out      io.Writer
+	terminal bool
+	verbose  bool
+	names    []string
+	times    []time.Duration
+	begun    time.Time
+	first    time.Time
+}
+
+func newStageClock(verbose bool) *stageClock {
+	fi, err := os.Stderr.Stat()
+	terminal := err == nil && fi.Mode()&os.ModeCharDevice != 0
+	return &stageClock{out: os.Stderr, terminal: terminal, verbose: verbose}
+}
+
+// start ends the current stage and begins the named one ("" ends it only).
+// Stage names are the program's own words (no user text reaches the
+// terminal through them).
+func (c *stageClock) start(name string) {
+	now := time.Now()
+	if c.first.IsZero() {
+		c.first = now
+	}
+	if len(c.names) > 0 && c.times[len(c.times)-1] < 0 {
+		c.times[len(c.times)-1] = now.Sub(c.begun)
+	}
+	if name == "" {
+		return
+	}
+	c.names = append(c.names, name)
+	c.times = append(c.times, -1)
+	c.begun = now
+	if c.terminal {
+		fmt.Fprintf(c.out, "\r\033[Kcounterpart report: %s…", name)
+	}
+}
+
+// finish ends the last stage, clears the terminal line and, with
+// --verbose, prints the timing line.
+func (c *stageClock) finish() {
+	c.start("")
+	if c.terminal {
+		fmt.Fprint(c.out, "\r\033[K")
+	}
+	if !c.verbose || len(c.names) == 0 {
+		return
+	}
+	parts := make([]string, len(c.names))
+	for i, n := range c.names {
+		parts[i] = fmt.Sprintf("%s %.2f s", n, c.times[i].Seconds())
+	}
+	fmt.Fprintf(c.out, "counterpart report: timing: %s; total %.2f s\n", strings.Join(parts, ", "), time.Since(c.first).Seconds())
+}
