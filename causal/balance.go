@@ -131,61 +131,93 @@ func balanceFor(d *Design, w []float64, label string) *BalanceSheet {
 	b := &BalanceSheet{Weighted: w != nil, Label: label, Rows: make([]BalanceRow, d.P-1)}
 	// One column per task, columns in parallel (each computed by one worker
 	// in row order, so the result does not depend on the number of cores).
-	scratch := make([]*balanceScratch, columnWorkers(d.P-1, d.N, balanceScratchBytes))
-	parallelColumns(d.P-1, len(scratch), func(worker, k int) {
+	// Tasks are groups of balanceGroup adjacent columns, read from the
+	// row-major design in one pass per group.
+	var ws []float64 // the weights split by arm (treated first), shared
+	if w != nil {
+		ws = make([]float64, d.N)
+		a, c := 0, d.Treated
+		for i, v := range w {
+			if d.T[i] == 1 {
+				ws[a] = v
+				a++
+			} else {
+				ws[c] = v
+				c++
+			}
+		}
+	}
+	groups := (d.P - 1 + balanceGroup - 1) / balanceGroup
+	scratch := make([]*balanceScratch, columnWorkers(groups, d.N, balanceScratchBytes))
+	parallelColumns(groups, len(scratch), func(worker, g int) {
 		if scratch[worker] == nil {
 			scratch[worker] = newBalanceScratch(d.N, w != nil)
 		}
-		b.Rows[k] = balanceColumn(d, k+1, w, scratch[worker])
+		s := scratch[worker]
+		j0, j1 := 1+g*balanceGroup, min(d.P, 1+(g+1)*balanceGroup)
+		nan := s.nan[:j1-j0]
+		clear(nan)
+		a, c := 0, d.Treated
+		for i := 0; i < d.N; i++ {
+			k := c
+			if d.T[i] == 1 {
+				k = a
+				a++
+			} else {
+				c++
+			}
+			row := d.X[i*d.P+j0 : i*d.P+j1]
+			for q, v := range row {
+				s.xg[q][k] = v
+				nan[q] = nan[q] || v != v
+			}
+		}
+		for q := range j1 - j0 {
+			b.Rows[j0+q-1] = balanceColumn(d, j0+q, s.xg[q], ws, nan[q], s)
+		}
 	})
 	return b
 }
 
+// balanceGroup is the number of adjacent design columns a balance task
+// reads from the design in one pass.
+const balanceGroup = 4
+
 // balanceScratchBytes is the scratch memory of one balance worker per row.
-const balanceScratchBytes = 5*8 + 2*4
+const balanceScratchBytes = (balanceGroup+6)*8 + 2*4 + 4/8
 
 // balanceScratch holds one worker's buffers, reused across columns: the
 // column split by arm (treated first), its weights, and the sort buffers.
 type balanceScratch struct {
-	x, w, ws   []float64
-	keys, tmpK []uint64
-	idx, tmpI  []int32
+	xg               [balanceGroup][]float64 // a group's columns split by arm
+	nan              [balanceGroup]bool
+	ws, w2, out      []float64
+	keys, tmpK       []uint64
+	idx, tmpI, count []int32
 }
 
 func newBalanceScratch(n int, weighted bool) *balanceScratch {
-	s := &balanceScratch{x: make([]float64, n), keys: make([]uint64, n), tmpK: make([]uint64, n)}
+	s := &balanceScratch{out: make([]float64, n), keys: make([]uint64, n), tmpK: make([]uint64, n),
+		idx: make([]int32, n), tmpI: make([]int32, n)}
+	for q := range s.xg {
+		s.xg[q] = make([]float64, n)
+	}
 	if weighted {
-		s.w, s.ws = make([]float64, n), make([]float64, n)
-		s.idx, s.tmpI = make([]int32, n), make([]int32, n)
+		s.ws, s.w2 = make([]float64, n), make([]float64, n)
 	}
 	return s
 }
 
-// balanceColumn is the balance row of design column j.
-func balanceColumn(d *Design, j int, w []float64, s *balanceScratch) BalanceRow {
+// balanceColumn is the balance row of design column j, given the column
+// and the weights (nil: none) split by arm, treated first; nan says whether
+// the column holds a NaN.
+func balanceColumn(d *Design, j int, x, w []float64, nan bool, s *balanceScratch) BalanceRow {
 	r := BalanceRow{Term: d.Terms[j].Name, Binary: d.Terms[j].Binary}
 	n1 := d.Treated
-	x1, x0 := s.x[:n1], s.x[n1:d.N]
+	x1, x0 := x[:n1], x[n1:d.N]
 	var w1, w0 []float64
 	if w != nil {
-		w1, w0 = s.w[:n1], s.w[n1:d.N]
-	}
-	a, c := 0, n1
-	nan := false
-	for i := 0; i < d.N; i++ {
-		v := d.X[i*d.P+j]
-		nan = nan || v != v
-		k := c
-		if d.T[i] == 1 {
-			k = a
-			a++
-		} else {
-			c++
-		}
-		s.x[k] = v
-		if w != nil {
-			s.w[k] = w[i]
-		}
+		w1, w0 = w[:n1], w[n1:d.N]
 	}
 	r.SMD, r.VarianceRatio = smdRatio(x1, x0, nil, nil, r.Binary)
 	r.SMDWeighted, r.VarianceRatioWeighted, r.KSWeighted = math.NaN(), math.NaN(), math.NaN()
@@ -196,6 +228,14 @@ func balanceColumn(d *Design, j int, w []float64, s *balanceScratch) BalanceRow 
 		r.KS = math.NaN()
 		return r
 	}
+	if r.Binary {
+		// Two values: the CDFs differ only at 0, so KS = |F1(0) − F0(0)|.
+		r.KS = math.Abs(zeroShare(x1, nil) - zeroShare(x0, nil))
+		if w != nil {
+			r.KSWeighted = math.Abs(zeroShare(x1, w1) - zeroShare(x0, w0))
+		}
+		return r
+	}
 	// Each arm sorted once (stably, with its weights carried along); the
 	// order serves the unweighted and the weighted KS statistic.
 	ws1, ws0 := sortArm(x1, w1, s, 0), sortArm(x0, w0, s, n1)
@@ -204,6 +244,22 @@ func balanceColumn(d *Design, j int, w []float64, s *balanceScratch) BalanceRow 
 		r.KSWeighted = stat.KolmogorovSmirnov(x1, ws1, x0, ws0)
 	}
 	return r
+}
+
+// zeroShare is the (weighted) share of the values of x that are 0.
+func zeroShare(x, w []float64) float64 {
+	var zero, all float64
+	for i, v := range x {
+		wi := 1.0
+		if w != nil {
+			wi = w[i]
+		}
+		all += wi
+		if v == 0 {
+			zero += wi
+		}
+	}
+	return zero / all
 }
 
 // smdRatio is the SMD and variance ratio of one term between the arms
@@ -220,9 +276,119 @@ func smdRatio(x1, x0, w1, w0 []float64, binary bool) (smd, vr float64) {
 	return smdValue(m1, m0, v1, v0), vr
 }
 
-// sortArm sorts x in place (radixSort of floatKey) and, when w is given,
-// returns w in the same order in s.ws[off:off+len(x)].
+// sortArm sorts x in place, stably, and, when w is given, returns w in the
+// same order in s.ws[off:off+len(x)]. It is a distribution sort: one pass
+// scatters the values into about len(x)/8 buckets by their place between the
+// minimum and the maximum (the bucket index is a non-decreasing function of
+// the value, so buckets are in order), then each bucket is sorted where it
+// lies: by insertion when it is small, else by radixSort of floatKey (many
+// ties, or values crowded in a narrow range, stay O(n)).
 func sortArm(x, w []float64, s *balanceScratch, off int) []float64 {
+	n := len(x)
+	var ws []float64
+	if w != nil {
+		ws = s.ws[off : off+n]
+	}
+	if n == 0 {
+		return ws
+	}
+	lo, hi := x[0], x[0]
+	for _, v := range x {
+		if v < lo {
+			lo = v
+		}
+		if v > hi {
+			hi = v
+		}
+	}
+	if lo == hi || n < 64 || math.IsInf(hi-lo, 0) {
+		radixSegment(x, w, ws, s)
+		return ws
+	}
+	nb := max(1, n/8)
+	scale := float64(nb) / (hi - lo)
+	bucket := func(v float64) int { return min(nb-1, int((v-lo)*scale)) }
+	if cap(s.count) < nb+1 {
+		s.count = make([]int32, nb+1)
+	}
+	count := s.count[:nb+1]
+	clear(count)
+	for _, v := range x {
+		count[bucket(v)+1]++
+	}
+	for b := 1; b <= nb; b++ {
+		count[b] += count[b-1]
+	}
+	// Scatter into s.out (and ws), stably; count[b] ends at bucket b's end.
+	out := s.out[:n]
+	pos := s.tmpI[:nb]
+	for b := range pos {
+		pos[b] = count[b]
+	}
+	for i, v := range x {
+		b := bucket(v)
+		out[pos[b]] = v
+		if w != nil {
+			ws[pos[b]] = w[i]
+		}
+		pos[b]++
+	}
+	copy(x, out)
+	wsrc := ws
+	if w != nil {
+		// The scattered weights move to s.w2 so that ws can receive the
+		// sorted order of large buckets.
+		wsrc = s.w2[:n]
+		copy(wsrc, ws)
+	}
+	for b := 0; b < nb; b++ {
+		a, e := int(count[b]), int(count[b+1])
+		var from, to []float64 // the bucket's weights, scattered and sorted
+		if w != nil {
+			from, to = wsrc[a:e], ws[a:e]
+		}
+		switch {
+		case e-a == 1:
+			copy(to, from)
+		case e-a <= 32:
+			insertionSort(x[a:e], from, to)
+		case e > a:
+			radixSegment(x[a:e], from, to, s)
+		}
+	}
+	return ws
+}
+
+// insertionSort sorts x stably, moving w along into ws (both nil when there
+// are no weights; ws may be w's copy or a separate slice of the same length).
+func insertionSort(x, w, ws []float64) {
+	if w != nil {
+		copy(ws, w)
+	}
+	for i := 1; i < len(x); i++ {
+		v := x[i]
+		var wv float64
+		if w != nil {
+			wv = ws[i]
+		}
+		j := i
+		for j > 0 && x[j-1] > v {
+			x[j] = x[j-1]
+			if w != nil {
+				ws[j] = ws[j-1]
+			}
+			j--
+		}
+		x[j] = v
+		if w != nil {
+			ws[j] = wv
+		}
+	}
+}
+
+// radixSegment sorts x stably by radixSort of floatKey and writes w in that
+// order to ws (w nil: no weights).
+func radixSegment(x, w, ws []float64, s *balanceScratch) {
 	n := len(x)
 	keys := s.keys[:n]
 	for i, v := range x {
@@ -235,18 +401,13 @@ func sortArm(x, w []float64, s *balanceScratch, off int) []float64 {
 			idx[i] = int32(i)
 		}
 	}
-	keys, idx = radixSort(keys, idx, s.tmpK[:n], s.tmpI[:min(n, len(s.tmpI))])
+	keys, idx = radixSort(keys, idx, s.tmpK[:n], s.tmpI[:n])
 	for i, k := range keys {
 		x[i] = keyFloat(k)
 	}
-	if w == nil {
-		return nil
-	}
-	ws := s.ws[off : off+n]
 	for i, k := range idx {
 		ws[i] = w[k]
 	}
-	return ws
 }
 
 // String is the terminal view.
