@@ -278,7 +278,7 @@ func smdRatio(x1, x0, w1, w0 []float64, binary bool) (smd, vr float64) {
 
 // sortArm sorts x in place, stably, and, when w is given, returns w in the
 // same order in s.ws[off:off+len(x)]. It is a distribution sort: one pass
-// scatters the values into about len(x)/8 buckets by their place between the
+// scatters the values into about len(x)/4 buckets by their place between the
 // minimum and the maximum (the bucket index is a non-decreasing function of
 // the value, so buckets are in order), then each bucket is sorted where it
 // lies: by insertion when it is small, else by radixSort of floatKey (many
@@ -305,7 +305,7 @@ func sortArm(x, w []float64, s *balanceScratch, off int) []float64 {
 		radixSegment(x, w, ws, s)
 		return ws
 	}
-	nb := max(1, n/8)
+	nb := max(1, n/4)
 	scale := float64(nb) / (hi - lo)
 	bucket := func(v float64) int { return min(nb-1, int((v-lo)*scale)) }
 	if cap(s.count) < nb+1 {
@@ -350,7 +350,7 @@ func sortArm(x, w []float64, s *balanceScratch, off int) []float64 {
 		switch {
 		case e-a == 1:
 			copy(to, from)
-		case e-a <= 32:
+		case e-a <= 64:
 			insertionSort(x[a:e], from, to)
 		case e > a:
 			radixSegment(x[a:e], from, to, s)
