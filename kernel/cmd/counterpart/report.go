@@ -76,9 +76,11 @@ func reportCommand() *command {
 				covs = append(covs, c)
 			}
 		}
-		if _, err := os.Stat(*data); err != nil {
+		fi, err := os.Stat(*data)
+		if err != nil {
 			return fmt.Errorf("--data %s: %v", *data, errors.Unwrap(err))
 		}
+		paceMemory(fi.Size())
 		clock := newStageClock(*verbose)
 		defer clock.finish()
 		clock.start("reading")
