@@ -60,13 +60,28 @@ func (r BalanceRow) VarianceOff() bool {
 //	variance ratio = s1²/s0²                          (Rubin 2001)
 //	KS = max_x |F1(x) − F0(x)|                         (two-sample Kolmogorov–Smirnov statistic)
 //
-// Weighted versions use weighted means m_a = Σwx/Σw, weighted variances
-// Σw(x−m_a)²/(Σw − Σw²/Σw) (Austin & Stuart 2015) and weighted empirical CDFs.
+// Weighted versions use weighted means m_a = Σwx/Σw and weighted empirical
+// CDFs. The weighted SMD keeps the unweighted denominator √((s1² + s0²)/2)
+// (for a 0/1 term the unweighted p_a) of the data before weighting, so that
+// before and after share one scale and a change reflects the means only (the
+// convention of Rosenbaum & Rubin 1985, Am. Statist. 39(1), 33–38, for
+// matched samples, and of Stuart 2010, Statist. Sci. 25(1), 1–21; cited from
+// memory). BalanceOptions.WeightedSD selects instead the weighted variances
+// Σw(x−m_a)²/(Σw − Σw²/Σw) of Austin & Stuart (2015). The weighted variance
+// ratio always uses the weighted variances.
 type BalanceSheet struct {
 	Rows     []BalanceRow
 	Weighted bool
 	Label    string // what the weights are, e.g. "ATE weights"
+	Options  BalanceOptions
 	err      error
+}
+
+// BalanceOptions chooses the denominator of the weighted SMD.
+type BalanceOptions struct {
+	// WeightedSD: the weighted arm variances (Austin & Stuart 2015) rather
+	// than the unweighted pooled SD (the default; see BalanceSheet).
+	WeightedSD bool
 }
 
 // Err returns why the sheet could not be computed, or nil.
@@ -105,10 +120,23 @@ func (s *Study) BalanceWeighted(w []float64, label string) *BalanceSheet {
 	if err != nil {
 		return &BalanceSheet{err: err}
 	}
-	return balanceFor(d, w, label)
+	return balanceForWith(d, w, label, BalanceOptions{})
+}
+
+// BalanceWeightedWith is BalanceWeighted with the SMD denominator chosen by o.
+func (s *Study) BalanceWeightedWith(w []float64, label string, o BalanceOptions) *BalanceSheet {
+	d, err := s.Design()
+	if err != nil {
+		return &BalanceSheet{err: err}
+	}
+	return balanceForWith(d, w, label, o)
 }
 
 func balanceFor(d *Design, w []float64, label string) *BalanceSheet {
+	return balanceForWith(d, w, label, BalanceOptions{})
+}
+
+func balanceForWith(d *Design, w []float64, label string, o BalanceOptions) *BalanceSheet {
 	if w != nil {
 		if len(w) != d.N {
 			return &BalanceSheet{err: fmt.Errorf("balance: %d weights for %d rows", len(w), d.N)}
@@ -128,7 +156,7 @@ func balanceFor(d *Design, w []float64, label string) *BalanceSheet {
 			return &BalanceSheet{err: errors.New("balance: the weights are zero for every unit of one arm")}
 		}
 	}
-	b := &BalanceSheet{Weighted: w != nil, Label: label, Rows: make([]BalanceRow, d.P-1)}
+	b := &BalanceSheet{Weighted: w != nil, Label: label, Options: o, Rows: make([]BalanceRow, d.P-1)}
 	// One column per task, columns in parallel (each computed by one worker
 	// in row order, so the result does not depend on the number of cores).
 	// Tasks are groups of balanceGroup adjacent columns, read from the
@@ -173,7 +201,7 @@ func balanceFor(d *Design, w []float64, label string) *BalanceSheet {
 			}
 		}
 		for q := range j1 - j0 {
-			b.Rows[j0+q-1] = balanceColumn(d, j0+q, s.xg[q], ws, nan[q], s)
+			b.Rows[j0+q-1] = balanceColumn(d, j0+q, s.xg[q], ws, nan[q], o, s)
 		}
 	})
 	return b
@@ -211,7 +239,7 @@ func newBalanceScratch(n int, weighted bool) *balanceScratch {
 // balanceColumn is the balance row of design column j, given the column
 // and the weights (nil: none) split by arm, treated first; nan says whether
 // the column holds a NaN.
-func balanceColumn(d *Design, j int, x, w []float64, nan bool, s *balanceScratch) BalanceRow {
+func balanceColumn(d *Design, j int, x, w []float64, nan bool, o BalanceOptions, s *balanceScratch) BalanceRow {
 	r := BalanceRow{Term: d.Terms[j].Name, Binary: d.Terms[j].Binary}
 	n1 := d.Treated
 	x1, x0 := x[:n1], x[n1:d.N]
@@ -219,10 +247,17 @@ func balanceColumn(d *Design, j int, x, w []float64, nan bool, s *balanceScratch
 	if w != nil {
 		w1, w0 = w[:n1], w[n1:d.N]
 	}
-	r.SMD, r.VarianceRatio = smdRatio(x1, x0, nil, nil, r.Binary)
+	var v1, v0 float64 // the unweighted variances of the SMD's denominator
+	r.SMD, r.VarianceRatio, v1, v0 = smdRatio(x1, x0, nil, nil, r.Binary)
 	r.SMDWeighted, r.VarianceRatioWeighted, r.KSWeighted = math.NaN(), math.NaN(), math.NaN()
 	if w != nil {
-		r.SMDWeighted, r.VarianceRatioWeighted = smdRatio(x1, x0, w1, w0, r.Binary)
+		var m1, m0 float64
+		r.SMDWeighted, r.VarianceRatioWeighted, _, _ = smdRatio(x1, x0, w1, w0, r.Binary)
+		if !o.WeightedSD {
+			m1, _ = meanVar(x1, w1)
+			m0, _ = meanVar(x0, w0)
+			r.SMDWeighted = smdValue(m1, m0, v1, v0)
+		}
 	}
 	if nan { // as stat.KolmogorovSmirnov
 		r.KS = math.NaN()
@@ -263,8 +298,9 @@ func zeroShare(x, w []float64) float64 {
 }
 
 // smdRatio is the SMD and variance ratio of one term between the arms
-// (weights nil: unweighted; see BalanceSheet for the formulas).
-func smdRatio(x1, x0, w1, w0 []float64, binary bool) (smd, vr float64) {
+// (weights nil: unweighted; see BalanceSheet for the formulas), with the
+// arm variances in the SMD's denominator (p_a(1 − p_a) for a 0/1 term).
+func smdRatio(x1, x0, w1, w0 []float64, binary bool) (smd, vr, v1, v0 float64) {
 	m1, v1 := meanVar(x1, w1)
 	m0, v0 := meanVar(x0, w0)
 	vr = math.NaN()
@@ -273,7 +309,7 @@ func smdRatio(x1, x0, w1, w0 []float64, binary bool) (smd, vr float64) {
 	} else if v0 > 0 {
 		vr = v1 / v0
 	}
-	return smdValue(m1, m0, v1, v0), vr
+	return smdValue(m1, m0, v1, v0), vr, v1, v0
 }
 
 // sortArm sorts x in place, stably, and, when w is given, returns w in the
@@ -419,6 +455,11 @@ func (b *BalanceSheet) String() string {
 	title := "Covariate balance (|SMD| > 0.1 flagged, Austin 2009; variance ratio outside [0.5, 2] flagged, Rubin 2001)"
 	fmt.Fprintln(&s, title)
 	if b.Weighted {
+		if b.Options.WeightedSD {
+			fmt.Fprintln(&s, "  weighted SMD over the weighted arm SDs (Austin & Stuart 2015)")
+		} else {
+			fmt.Fprintln(&s, "  weighted SMD over the unweighted pooled SD, the same denominator as before weighting")
+		}
 		lbl := b.Label
 		if lbl == "" {
 			lbl = "weights"

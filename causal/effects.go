@@ -35,7 +35,9 @@ const (
 	//
 	//	τ = x̄'(b1 − b0),  Var = x̄'(V1 + V0)x̄ + (b1 − b0)'S(b1 − b0)/m
 	//
-	// (delta method; V_a = σ̂_a²(X_a'X_a)⁻¹, the classical OLS covariance).
+	// (delta method; V_a = σ̂_a²(X_a'X_a)⁻¹, the classical OLS covariance, or
+	// with EffectWith a heteroskedasticity-robust HC0/HC1/HC3 covariance,
+	// White 1980, MacKinnon & White 1985; see OLSCovariance).
 	// It predicts f1 for controls and f0 for treated units: see
 	// Scores.Extrapolation for how much of that is extrapolation.
 	RegressionAdjustment
@@ -83,6 +85,17 @@ const (
 	// means of every model covariate are equal in the two arms exactly.
 	// SE: stacked-equation sandwich.
 	OverlapWeighted
+
+	// NearestNeighbourMatching is 1:1 matching on the logit of the score,
+	// with replacement, no caliper (Abadie & Imbens 2006 estimator and
+	// variance; formula at Matching.Effect). Scores.Match offers K, a
+	// caliper, exact covariates and matching without replacement.
+	NearestNeighbourMatching
+
+	// Subclassification averages within-stratum differences in means over
+	// five strata at the quintiles of the score (Rosenbaum & Rubin 1984;
+	// formula at Strata.Effect). Scores.Subclassify chooses the number.
+	Subclassification
 )
 
 var estimatorIDs = map[Estimator]string{
@@ -92,6 +105,9 @@ var estimatorIDs = map[Estimator]string{
 	IPWNormalized:        "ipw_normalized",
 	AIPW:                 "aipw",
 	OverlapWeighted:      "overlap_weighted",
+
+	NearestNeighbourMatching: "nearest_neighbour_matching",
+	Subclassification:        "subclassification",
 }
 
 // AllEstimators lists the estimators in report order.
@@ -115,13 +131,13 @@ func ParseEstimator(id string) (Estimator, error) {
 			return e, nil
 		}
 	}
-	return 0, fmt.Errorf("unknown estimator %q: use one of difference_in_means, regression_adjustment, ipw, ipw_normalized, aipw, overlap_weighted", id)
+	return 0, fmt.Errorf("unknown estimator %q: use one of difference_in_means, regression_adjustment, ipw, ipw_normalized, aipw, overlap_weighted, nearest_neighbour_matching, subclassification", id)
 }
 
 // Estimands lists the estimands the estimator targets.
 func (e Estimator) Estimands() []Estimand {
 	switch e {
-	case DifferenceInMeans, RegressionAdjustment, IPW, IPWNormalized, AIPW:
+	case DifferenceInMeans, RegressionAdjustment, IPW, IPWNormalized, AIPW, NearestNeighbourMatching, Subclassification:
 		return []Estimand{ATE, ATT, ATC}
 	case OverlapWeighted:
 		return []Estimand{ATO}
@@ -274,12 +290,27 @@ func (o estOut) se() float64 {
 // that does not target the estimand, infinite weights, an outcome model that
 // cannot be fitted) are returned by Err and shown by every view.
 func (sc *Scores) Effect(est Estimator, target Estimand, cells ...*Cells) *Effect {
-	return sc.effect(est, target, cells, nil)
+	return sc.effect(EffectOptions{}, est, target, cells, nil)
 }
 
-// effect is Effect; why, when not nil, returns the reason the data do not
-// support the target (sc.unsupported), so that Effects judges it once.
-func (sc *Scores) effect(est Estimator, target Estimand, cells []*Cells, why func() string) *Effect {
+// EffectOptions tune how an Effect is computed.
+type EffectOptions struct {
+	// OutcomeCovariance is the covariance of the outcome models'
+	// coefficients in the regression-adjustment SE: ClassicalOLS (the
+	// default) or a heteroskedasticity-robust HC0, HC1 or HC3 (see
+	// OLSCovariance). Other estimators ignore it.
+	OutcomeCovariance OLSCovariance
+}
+
+// EffectWith is Effect with options; the SE method then names the
+// covariance used (e.g. "delta method (HC3)").
+func (sc *Scores) EffectWith(o EffectOptions, est Estimator, target Estimand, cells ...*Cells) *Effect {
+	return sc.effect(o, est, target, cells, nil)
+}
+
+// effect is EffectWith; why, when not nil, returns the reason the data do
+// not support the target (sc.unsupported), so that Effects judges it once.
+func (sc *Scores) effect(o EffectOptions, est Estimator, target Estimand, cells []*Cells, why func() string) *Effect {
 	if why == nil {
 		why = func() string { return sc.unsupported(target, cells) }
 	}
@@ -293,6 +324,12 @@ func (sc *Scores) effect(est Estimator, target Estimand, cells []*Cells, why fun
 	if err := checkEstimator(est, target); err != nil {
 		eff.err = err
 		return eff
+	}
+	switch est {
+	case NearestNeighbourMatching:
+		return sc.Match(MatchOptions{Estimand: target}).Effect(cells...)
+	case Subclassification:
+		return sc.Subclassify(0).Effect(target, cells...)
 	}
 	for _, c := range cells {
 		if err := c.Err(); err != nil {
@@ -330,6 +367,17 @@ func (sc *Scores) effect(est Estimator, target Estimand, cells []*Cells, why fun
 		if est == AIPW {
 			oc.f1, oc.f0 = predictInto(nil, d, m1, nil), predictInto(nil, d, m0, nil)
 		}
+		if est == RegressionAdjustment && o.OutcomeCovariance != ClassicalOLS {
+			switch o.OutcomeCovariance {
+			case HC0, HC1, HC3:
+			default:
+				eff.err = fmt.Errorf("%s: unknown outcome covariance %v: use causal.ClassicalOLS, HC0, HC1 or HC3", est, o.OutcomeCovariance)
+				return eff
+			}
+			m1.useRobust(d, 1, o.OutcomeCovariance)
+			m0.useRobust(d, 0, o.OutcomeCovariance)
+			eff.SEMethod = fmt.Sprintf("%s (%s)", eff.SEMethod, o.OutcomeCovariance)
+		}
 		eff.aliasFlags(d, oc)
 	}
 	out, err := evaluate(sc, est, target, nil, oc, nil, true)
@@ -349,7 +397,11 @@ func (sc *Scores) effect(est Estimator, target Estimand, cells []*Cells, why fun
 	} else {
 		eff.CI95 = Interval{eff.Value - z975*eff.SE, eff.Value + z975*eff.SE}
 	}
-	eff.Notes = append(eff.Notes, "SE: "+est.seDescription())
+	if desc := est.seDescription(); eff.SEMethod != est.seMethod() {
+		eff.Notes = append(eff.Notes, "SE: delta method with the heteroskedasticity-robust "+o.OutcomeCovariance.String()+" covariances of both arm models")
+	} else {
+		eff.Notes = append(eff.Notes, "SE: "+desc)
+	}
 	if est == DifferenceInMeans {
 		eff.Notes = append(eff.Notes, "unadjusted contrast: it estimates the "+target.String()+" only if treatment is independent of the potential outcomes (a randomised design)")
 	}
@@ -413,6 +465,9 @@ func (eff *Effect) aliasFlags(d *Design, oc *outcomes) {
 // covariance of the arm means (only without fw).
 func evaluate(sc *Scores, est Estimator, target Estimand, e []float64, oc *outcomes, fw []float64, withSE bool) (estOut, error) {
 	d := sc.Design
+	if est == NearestNeighbourMatching || est == Subclassification {
+		return estOut{}, fmt.Errorf("%s is not resampled by the bootstrap: use its own standard error (Scores.Match, Scores.Subclassify); for matching with replacement the bootstrap is not valid (Abadie & Imbens 2008)", est)
+	}
 	if e == nil {
 		e = sc.E
 	}
@@ -899,7 +954,7 @@ func (sc *Scores) Effects(target Estimand, cells ...*Cells) *Estimates {
 	}
 	for _, est := range AllEstimators {
 		if est.targets(target) {
-			es.Items = append(es.Items, sc.effect(est, target, cells, why))
+			es.Items = append(es.Items, sc.effect(EffectOptions{}, est, target, cells, why))
 		}
 	}
 	return es

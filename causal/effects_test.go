@@ -250,8 +250,9 @@ func TestWeightsTruncate(t *testing.T) {
 		t.Fatal(tw.Err())
 	}
 	d := sc.Design
-	// Each arm's weights now lie within its 5th and 95th percentiles, and
-	// about 10% of each arm moved (type-7 quantiles: at most 5% + 1 per tail).
+	// Each arm's weights now lie within its bounds (the pooled 5th and 95th
+	// percentiles of the stabilised weights on the arm's scale), and about
+	// 10% of the units moved (type-7 quantiles: at most 5% + 1 per tail).
 	for i, v := range tw.W {
 		b := tw.Truncation.Control
 		if d.T[i] == 1 {

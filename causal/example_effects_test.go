@@ -24,7 +24,7 @@ func ExampleScores_Weights() {
 func ExampleWeights_Truncate() {
 	w := water().Propensity().Weights(causal.ATE).Truncate(1, 99)
 	fmt.Printf("%d weights moved; ESS treated %.0f\n", w.Truncation.Changed, w.ESSTreated)
-	// Output: 82 weights moved; ESS treated 559
+	// Output: 80 weights moved; ESS treated 575
 }
 
 func ExampleWeights_Balance() {
@@ -178,5 +178,5 @@ func ExampleScores_WithWeights() {
 	}
 	ww := sc.WithWeights(w, "capped ATT weights")
 	fmt.Printf("%s: control ESS %.0f, largest |SMD| %.3f\n", ww.Label, ww.ESSControl, ww.Balance().MaxAbsSMD())
-	// Output: capped ATT weights: control ESS 681, largest |SMD| 0.236
+	// Output: capped ATT weights: control ESS 681, largest |SMD| 0.293
 }

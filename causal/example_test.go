@@ -144,5 +144,5 @@ func ExampleBuildReport() {
 		return
 	}
 	fmt.Println(r.Schema, r.Verdict.Status, len(r.Estimates), "estimates")
-	// Output: counterpart.report/v1 adequate 5 estimates
+	// Output: counterpart.report/v1 adequate 7 estimates
 }

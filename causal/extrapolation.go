@@ -20,6 +20,10 @@ const (
 	CurveBins = 40
 )
 
+// LeverageRule names the leverage test of the extrapolation audit in its
+// text and JSON views (see ExtrapolationAudit).
+const LeverageRule = "leverage above the largest of the fitting arm (max h_ii): outside the ellipsoid that contains the regressor variable hull (Montgomery, Peck & Vining)"
+
 // ExtrapolationAudit shows how much of a regression-adjusted estimate rests
 // on extrapolation. Regression adjustment predicts f1 (fitted on the treated)
 // for the controls in the target population and f0 (fitted on the controls)
@@ -28,11 +32,22 @@ const (
 //
 //   - outside the range of the fitting arm on some design term (a level the
 //     arm does not have counts as outside), or
-//   - with leverage h = x'(X_a'X_a)⁻¹x above the largest leverage of the
-//     arm's own units, a multivariate test: the point is farther from the
-//     arm's centre, in the metric of its covariance, than any unit the
-//     model was fitted on (Cook & Weisberg 1982; King & Zeng 2006 use
-//     the convex hull for the same purpose).
+//   - with leverage h = x'(X_a'X_a)⁻¹x above h_max, the largest leverage
+//     h_ii of the arm's own units (the hat-matrix diagonal; Hoaglin &
+//     Welsch 1978). This is the check for hidden extrapolation against the
+//     regressor variable hull (RVH), the convex hull of the fitting units'
+//     design rows, described by Montgomery, Peck & Vining (Introduction to
+//     Linear Regression Analysis, Wiley; the section on hidden extrapolation
+//     in multiple regression — edition and section cited from memory): the
+//     ellipsoid {x : x'(X'X)⁻¹x ≤ h_max} contains the RVH, so a point with
+//     h > h_max lies outside the hull and its prediction is extrapolation.
+//     The test is one-sided: h is convex in x, so no point of the hull
+//     exceeds h_max (TestLeverageRuleHull), but a point outside the hull can
+//     lie inside the ellipsoid and pass. With an intercept,
+//     h = 1/n_a + d²/(n_a − 1), d the Mahalanobis distance from the arm's
+//     mean: the point is farther from the arm's centre, in the metric of its
+//     covariance, than any unit the model was fitted on. (King & Zeng 2006
+//     test membership of the convex hull itself, which is exact but costly.)
 //
 // Models[0] audits f1, Models[1] f0. Restricted is the estimate over the
 // target units whose counterfactual predictions are all supported: a
@@ -248,6 +263,7 @@ func (a *ExtrapolationAudit) String() string {
 	}
 	var b strings.Builder
 	fmt.Fprintf(&b, "Extrapolation audit of regression adjustment (%s)\n", a.Estimand)
+	fmt.Fprintf(&b, "  unsupported: outside the fitting arm's range on a term, or %s\n", LeverageRule)
 	for _, m := range a.Models {
 		if m.Predictions == 0 {
 			fmt.Fprintf(&b, "  %s (fitted on %d %s units): no counterfactual predictions for the %s\n", m.Model, m.FitN, m.Arm, a.Estimand)
@@ -294,13 +310,14 @@ func (a *ExtrapolationAudit) MarshalJSON() ([]byte, error) {
 		ms = append(ms, model{m.Model, m.Arm, m.FitN, m.Predictions, m.OutsideRange, m.HighLeverage, m.Unsupported, Num(m.Share), Num(m.MaxLeverage), m.Terms})
 	}
 	return json.Marshal(struct {
-		Estimand   string  `json:"estimand"`
-		Models     []model `json:"models"`
-		TargetN    int     `json:"n_target"`
-		SupportedN int     `json:"n_supported"`
-		Full       *Effect `json:"estimate"`
-		Restricted *Effect `json:"estimate_supported"`
-	}{a.Estimand.String(), ms, a.TargetN, a.SupportedN, a.Full, a.Restricted})
+		Estimand     string  `json:"estimand"`
+		LeverageRule string  `json:"leverage_rule"`
+		Models       []model `json:"models"`
+		TargetN      int     `json:"n_target"`
+		SupportedN   int     `json:"n_supported"`
+		Full         *Effect `json:"estimate"`
+		Restricted   *Effect `json:"estimate_supported"`
+	}{a.Estimand.String(), LeverageRule, ms, a.TargetN, a.SupportedN, a.Full, a.Restricted})
 }
 
 // ExtrapolationCurve is chart data for f1 and f0 along one covariate, the

@@ -50,7 +50,9 @@ func (sc *Scores) MarshalJSON() ([]byte, error) {
 		Separation  []Separation `json:"separation"`
 		Extreme     int          `json:"extreme_scores"`
 		Calibration []calJ       `json:"calibration"`
-	}{Model: "logistic", Ridge: sc.Ridge, Converged: sc.Converged, Iterations: sc.Iterations,
+		// CalibrationTest is the Hosmer–Lemeshow and tail test (CalibrationTest).
+		CalibrationTest *CalibrationTest `json:"calibration_test"`
+	}{CalibrationTest: sc.CalibrationTest(), Model: "logistic", Ridge: sc.Ridge, Converged: sc.Converged, Iterations: sc.Iterations,
 		Deviance: Num(sc.Deviance), NullDev: Num(sc.NullDeviance), AUC: Num(sc.AUC), Extreme: sc.Extreme,
 		Separation: append([]Separation{}, sc.Separation...)}
 	for _, t := range sc.Terms {

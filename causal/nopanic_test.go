@@ -16,6 +16,7 @@ func TestNoPanicOnNilAndZeroResults(t *testing.T) {
 		(*Bootstrap)(nil), &Bootstrap{}, (*Sweep)(nil), &Sweep{}, (*ExtrapolationAudit)(nil), &ExtrapolationAudit{},
 		(*ExtrapolationCurve)(nil), &ExtrapolationCurve{}, (*Report)(nil), &Report{}, (*Design)(nil), &Design{},
 		(*Frame)(nil), &Frame{}, (*EValue)(nil), &EValue{},
+		(*Matching)(nil), &Matching{}, (*Strata)(nil), &Strata{},
 	}
 	for _, v := range values {
 		rv := reflect.ValueOf(v)

@@ -15,6 +15,7 @@ type olsFit struct {
 	beta   []float64 // b_a
 	xtxInv []float64 // (X_a' W X_a)^{-1}, p × p (nil when not asked for)
 	sigma2 float64   // residual variance RSS / (n_a − p)
+	robust []float64 // sandwich covariance of b_a (nil: classical; see useRobust)
 	n      float64   // units in the arm (sum of frequency weights)
 	p      int
 	// aliased lists the terms constant among the arm's units, left out of
@@ -27,8 +28,108 @@ type olsFit struct {
 	sumY float64
 }
 
-// cov is the classical OLS covariance σ²(X_a'X_a)^{-1} (R's vcov(lm)).
-func (m *olsFit) cov(j, k int) float64 { return m.sigma2 * m.xtxInv[j*m.p+k] }
+// cov is the covariance of b_a: the classical OLS covariance
+// σ²(X_a'X_a)^{-1} (R's vcov(lm)), or the robust one set by useRobust.
+func (m *olsFit) cov(j, k int) float64 {
+	if m.robust != nil {
+		return m.robust[j*m.p+k]
+	}
+	return m.sigma2 * m.xtxInv[j*m.p+k]
+}
+
+// OLSCovariance chooses the covariance of the outcome models' coefficients
+// in the regression-adjustment standard error. With X_a the arm's design,
+// r_i its least-squares residuals, h_i = x_i'(X_a'X_a)⁻¹x_i the leverages,
+// n_a units and k estimated coefficients, the heteroskedasticity-robust
+// (sandwich) forms are
+//
+//	V_a = (X_a'X_a)⁻¹ (Σ ω_i x_i x_i') (X_a'X_a)⁻¹,
+//	HC0: ω = r²                 (White 1980, Econometrica 48(4), 817–838)
+//	HC1: ω = r² n_a/(n_a − k)   (the degrees-of-freedom scaling; MacKinnon & White 1985)
+//	HC3: ω = r²/(1 − h)²        (MacKinnon & White 1985, J. Econometrics 29(3), 305–325)
+//
+// HC3 is the choice for small arms (Long & Ervin 2000, Amer. Statist. 54(3),
+// 217–224, recommend it below about 250 units; cited from memory).
+type OLSCovariance int
+
+const (
+	// ClassicalOLS is σ̂²(X_a'X_a)⁻¹, valid under constant residual variance (the default).
+	ClassicalOLS OLSCovariance = iota
+	HC0
+	HC1
+	HC3
+)
+
+// String is the covariance's name: "classical", "HC0", "HC1", "HC3".
+func (c OLSCovariance) String() string {
+	switch c {
+	case ClassicalOLS:
+		return "classical"
+	case HC0:
+		return "HC0"
+	case HC1:
+		return "HC1"
+	case HC3:
+		return "HC3"
+	}
+	return fmt.Sprintf("OLSCovariance(%d)", int(c))
+}
+
+// useRobust sets the arm model's covariance to the sandwich form c (see
+// OLSCovariance) from the residuals of the arm's units (t: the arm's
+// treatment value); needs the fit's inverse. A leverage of 1 (HC3) makes the
+// covariance NaN.
+func (m *olsFit) useRobust(d *Design, t float64, c OLSCovariance) {
+	if c == ClassicalOLS || m.xtxInv == nil {
+		return
+	}
+	p := m.p
+	meat := make([]float64, p*p)
+	bx := make([]float64, p)
+	for i := 0; i < d.N; i++ {
+		if d.T[i] != t {
+			continue
+		}
+		x := d.X[i*p : (i+1)*p]
+		r := d.Y[i] - m.predict(x)
+		w := r * r
+		switch c {
+		case HC1:
+			w *= m.n / (m.n - float64(p-len(m.aliased)))
+		case HC3:
+			for j := range bx {
+				bx[j] = floats.Dot(m.xtxInv[j*p:(j+1)*p], x)
+			}
+			h := floats.Dot(x, bx)
+			w /= (1 - h) * (1 - h)
+		}
+		for j, a := range x {
+			for k, b := range x {
+				meat[j*p+k] += w * a * b
+			}
+		}
+	}
+	tmp := make([]float64, p*p)
+	for j := 0; j < p; j++ {
+		for k := 0; k < p; k++ {
+			var v float64
+			for l := 0; l < p; l++ {
+				v += m.xtxInv[j*p+l] * meat[l*p+k]
+			}
+			tmp[j*p+k] = v
+		}
+	}
+	m.robust = make([]float64, p*p)
+	for j := 0; j < p; j++ {
+		for k := 0; k < p; k++ {
+			var v float64
+			for l := 0; l < p; l++ {
+				v += tmp[j*p+l] * m.xtxInv[l*p+k]
+			}
+			m.robust[j*p+k] = v
+		}
+	}
+}
 
 // predict returns x'b.
 func (m *olsFit) predict(x []float64) float64 {

@@ -39,6 +39,9 @@ type rRef struct {
 	BalanceATO map[string]struct {
 		SMD float64 `json:"smd"`
 	} `json:"balance_weighted_ato"`
+	BalanceATEWeightedSD map[string]struct {
+		SMD float64 `json:"smd"`
+	} `json:"balance_weighted_ate_weighted_sd"`
 	ESS map[string]struct {
 		Treated float64 `json:"treated"`
 		Control float64 `json:"control"`
@@ -170,8 +173,9 @@ func TestCategoricalFitMatchesRGlm(t *testing.T) {
 
 // Reference: SMD (Austin 2009 pooled-SD and binary forms), variance ratio and
 // R's ks.test statistic, computed in testdata/reference/nsw_reference.R; the
-// weighted SMDs use ATE and overlap weights from R's glm fit with the
-// Austin & Stuart (2015) weighted variance.
+// weighted SMDs use ATE and overlap weights from R's glm fit over the
+// unweighted pooled SD (the default), and over the Austin & Stuart (2015)
+// weighted variances (BalanceOptions.WeightedSD).
 func TestBalanceMatchesR(t *testing.T) {
 	ref := loadRef(t)
 	s := nswStudy()
@@ -208,6 +212,10 @@ func TestBalanceMatchesR(t *testing.T) {
 	bw := s.BalanceWeighted(ate, "ATE weights")
 	for _, r := range bw.Rows {
 		relClose(t, "ATE-weighted smd "+r.Term, r.SMDWeighted, ref.BalanceATE[r.Term].SMD, 1e-6)
+	}
+	bws := s.BalanceWeightedWith(ate, "ATE weights", BalanceOptions{WeightedSD: true})
+	for _, r := range bws.Rows {
+		relClose(t, "ATE-weighted smd (weighted SD) "+r.Term, r.SMDWeighted, ref.BalanceATEWeightedSD[r.Term].SMD, 1e-6)
 	}
 	// Overlap weights balance means exactly (Li, Morgan & Zaslavsky 2018).
 	bo := s.BalanceWeighted(ato, "overlap weights")

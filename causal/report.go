@@ -29,6 +29,9 @@ type ReportOptions struct {
 	// [α, 1−α]; Crump, Hotz, Imbens & Mitnik 2009), or "optimal" (their
 	// optimal α).
 	Trim string
+	// Caliper of the nearest-neighbour matching estimate, in SDs of the
+	// logit score (0: none; AustinCaliper, 0.2, is Austin's 2011 advice).
+	Caliper float64
 	// Bootstrap replicates for the primary estimator (0: none) and the seed.
 	Bootstrap int
 	Seed      uint64
@@ -37,7 +40,7 @@ type ReportOptions struct {
 	Progress func(done, total int)
 	// Stage, when set, is called with the name of each stage as it starts
 	// (design, propensity, support, cells, verdict, trimming, balance,
-	// estimates, bootstrap) and with "" when the report is built.
+	// estimates, matching, bootstrap) and with "" when the report is built.
 	Stage func(name string)
 }
 
@@ -86,8 +89,12 @@ type Report struct {
 	Cautions       []string `json:"cautions"`
 
 	// Results behind the fields, for views.
-	Study        *Study   `json:"-"`
-	Trimmed      *Trimmed `json:"-"`
+	Study   *Study   `json:"-"`
+	Trimmed *Trimmed `json:"-"`
+	// Matching and Strata behind the nearest_neighbour_matching and
+	// subclassification estimates (nil for the ATO).
+	Matching     *Matching `json:"-"`
+	Strata       *Strata   `json:"-"`
 	trimmedCells []*Cells
 	Options      ReportOptions `json:"-"`
 }
@@ -129,7 +136,9 @@ func discreteCovariates(d *Design) []string {
 
 // BuildReport runs the whole analysis: propensity model, support by arm,
 // positivity cells on the discrete covariates, balance before and after the
-// estimand's weights, optional trimming, every estimator of the estimand,
+// estimand's weights, optional trimming, every estimator of the estimand
+// (with nearest-neighbour matching and subclassification for the ATE, ATT
+// and ATC),
 // an optional bootstrap of the primary estimator (AIPW; overlap weights for
 // the ATO) and the verdict. A data or option error is returned as an error
 // naming the column, row or option.
@@ -142,6 +151,9 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	}
 	if o.Bootstrap < 0 {
 		return nil, fmt.Errorf("bootstrap: %d replicates: use 0 (none) or a positive number", o.Bootstrap)
+	}
+	if math.IsNaN(o.Caliper) || math.IsInf(o.Caliper, 0) || o.Caliper < 0 {
+		return nil, fmt.Errorf("caliper %g: use 0 (none) or a positive number of SDs of the logit score, e.g. 0.2", o.Caliper)
 	}
 	rule, trim, err := ParseTrim(o.Trim)
 	if err != nil {
@@ -239,6 +251,19 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		return nil, err
 	}
 	r.Estimates = es.Items
+	if o.Estimand != ATO {
+		// Matching on the logit score and subclassification on its quintiles.
+		stage("matching")
+		r.Matching = est.Match(MatchOptions{Estimand: o.Estimand, Caliper: o.Caliper})
+		r.Strata = est.Subclassify(0)
+		extra := []*Effect{r.Matching.Effect(estCells...), r.Strata.Effect(o.Estimand, estCells...)}
+		for _, e := range extra {
+			if trim {
+				r.Trimmed.mark(e)
+			}
+		}
+		r.Estimates = append(r.Estimates, extra...)
+	}
 	if o.Bootstrap > 0 {
 		stage("bootstrap")
 		ctx := o.Context

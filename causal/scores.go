@@ -47,7 +47,8 @@ type Separation struct {
 	mask []bool // rows of the design where it holds (nil: all rows)
 }
 
-// CalibrationBin is one score decile: mean score against the share treated.
+// CalibrationBin is one score decile (the deciles of risk of
+// Scores.CalibrationTest): mean score against the share treated.
 type CalibrationBin struct {
 	Lo, Hi       float64 // score range of the bin
 	MeanScore    float64
@@ -78,6 +79,8 @@ type Scores struct {
 	cov  []float64
 	opts logitOptions
 	err  error
+	// groups are the deciles of risk (calibrationGroups) of E.
+	groups []CalibrationGroup
 	// trimAlpha is the α of the symmetric trimming these scores were
 	// refitted after (0: none); see verdictDefaults.
 	trimAlpha float64
@@ -289,7 +292,10 @@ func propensityFor(d *Design, o logitOptions) *Scores {
 	}
 	sorted := sortScores(sc.E, d.T)
 	sc.AUC = aucSorted(sorted)
-	sc.Calibration = calibrationSorted(sorted, 10)
+	sc.groups = calibrationGroups(sorted)
+	for _, g := range sc.groups {
+		sc.Calibration = append(sc.Calibration, CalibrationBin{Lo: g.Lo, Hi: g.Hi, MeanScore: g.MeanScore, ShareTreated: g.ShareTreated, N: g.N})
+	}
 	return sc
 }
 
@@ -667,33 +673,4 @@ func aucSorted(p []scoreT) float64 {
 	}
 	n0 := float64(n) - n1
 	return (r1 - n1*(n1+1)/2) / (n1 * n0)
-}
-
-// calibrationSorted groups units by score quantile (bins of equal count;
-// ties kept together) and compares the mean score with the share treated.
-func calibrationSorted(p []scoreT, bins int) []CalibrationBin {
-	n := len(p)
-	var out []CalibrationBin
-	start := 0
-	for b := 1; b <= bins && start < n; b++ {
-		end := n * b / bins
-		if b == bins {
-			end = n
-		}
-		for end < n && end > 0 && p[end].e == p[end-1].e {
-			end++
-		}
-		if end <= start {
-			continue
-		}
-		var se, st float64
-		for _, u := range p[start:end] {
-			se += u.e
-			st += u.t
-		}
-		m := float64(end - start)
-		out = append(out, CalibrationBin{Lo: p[start].e, Hi: p[end-1].e, MeanScore: se / m, ShareTreated: st / m, N: end - start})
-		start = end
-	}
-	return out
 }

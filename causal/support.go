@@ -138,8 +138,12 @@ func (sc *Scores) SupportBins(bins int) *Support {
 }
 
 // profile compares rows flagged in mask with the rest, per design term.
-func profile(d *Design, mask []bool) []ProfileRow {
-	mean, variance := splitMoments(d, mask)
+func profile(d *Design, mask []bool) []ProfileRow { return profileAmong(d, mask, nil) }
+
+// profileAmong is profile restricted to the rows flagged in among (all rows
+// when among is nil): the flagged rows against the other rows of among.
+func profileAmong(d *Design, mask, among []bool) []ProfileRow {
+	mean, variance := splitMoments(d, mask, among)
 	var out []ProfileRow
 	for j := 1; j < d.P; j++ {
 		ma, mb := mean[0][j], mean[1][j]
@@ -156,16 +160,20 @@ func profile(d *Design, mask []bool) []ProfileRow {
 
 // splitMoments returns the mean and variance (n − 1 denominator; NaN for
 // fewer than two rows, the mean NaN for none) of every design column in
-// the rows flagged in mask (index 0) and the others (index 1): two passes
+// the rows flagged in mask (index 0) and the others (index 1), among the
+// rows flagged in among (nil: all rows): two passes
 // over blocks of rows in parallel (chunking: blocks fixed by n), partial
 // sums reduced in block order, so results do not depend on the cores.
-func splitMoments(d *Design, mask []bool) (mean, variance [2][]float64) {
+func splitMoments(d *Design, mask, among []bool) (mean, variance [2][]float64) {
 	n, p := d.N, d.P
 	_, count := chunking(n)
 	parts := make([][]float64, count) // per block: [group][count, sums of p columns]
 	parallelChunks(n, func(k, lo, hi int) {
 		acc := make([]float64, 2*(p+1))
 		for i := lo; i < hi; i++ {
+			if among != nil && !among[i] {
+				continue
+			}
 			g := acc[(p + 1):]
 			if mask[i] {
 				g = acc[:p+1]
@@ -200,6 +208,9 @@ func splitMoments(d *Design, mask []bool) (mean, variance [2][]float64) {
 		acc := parts[k][:2*p]
 		clear(acc)
 		for i := lo; i < hi; i++ {
+			if among != nil && !among[i] {
+				continue
+			}
 			g, m := acc[p:], mean[1]
 			if mask[i] {
 				g, m = acc[:p], mean[0]

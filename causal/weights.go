@@ -7,6 +7,8 @@ import (
 	"math"
 	"sort"
 	"strings"
+
+	"gonum.org/v1/gonum/floats"
 )
 
 // Estimand is the population whose average treatment effect is estimated.
@@ -110,11 +112,17 @@ type Weights struct {
 	err        error
 }
 
-// Truncation records how weights were truncated.
+// Truncation records how weights were truncated (Weights.Truncate,
+// Weights.TruncateWithinArms).
 type Truncation struct {
-	// Percentiles (0–100) of each arm's weights used as floor and cap.
+	// Percentiles (0–100) used as floor and cap: of the pooled stabilised
+	// weights when Pooled, else of each arm's weights.
 	LoPercentile, HiPercentile float64
-	// Bounds applied per arm.
+	Pooled                     bool
+	// Stabilised holds the pooled percentiles of the stabilised weights
+	// (when Pooled).
+	Stabilised Interval
+	// Bounds applied per arm, on the weights' own scale.
 	Treated, Control Interval
 	// Changed counts the weights moved to a bound.
 	Changed int
@@ -277,14 +285,35 @@ func kish(sum, sum2 float64) float64 {
 	return sum * sum / sum2
 }
 
-// Truncate returns a copy of the weights with each arm's weights floored at
-// the lo-th and capped at the hi-th percentile of that arm's weights
-// (0 ≤ lo < hi ≤ 100, e.g. Truncate(1, 99)). Percentiles interpolate
-// linearly between order statistics (Hyndman & Fan 1996, definition 7, R's
-// default). Truncating trades bias for variance (Cole & Hernán 2008): the
+// Truncate returns a copy of the weights floored at the lo-th and capped at
+// the hi-th percentile (0 ≤ lo < hi ≤ 100, e.g. Truncate(1, 99)) of the
+// pooled distribution of the stabilised weights, as Cole & Hernán (2008, Am.
+// J. Epidemiol. 168(6), 656–664) truncate stabilised weights at percentiles
+// of their distribution over all units. Stabilising puts the arms on one
+// scale: arm a's weights are divided by their mean m_a (over its positive
+// weights), s = w/m_a; for ATE weights 1/e and 1/(1−e) this is the
+// stabilised weight P̂(T=a)/P(T=a | x) with P̂(T=a) = n_a/Σ_a w, the Hájek
+// estimate of the marginal share. With L and U the pooled percentiles of s,
+// arm a's weights are moved into [L·m_a, U·m_a] (Truncation.Treated and
+// .Control give these bounds on the weights' own scale, which the
+// normalised estimators and the balance do not depend on). Percentiles
+// interpolate linearly between order statistics (Hyndman & Fan 1996,
+// definition 7, R's default). Truncating trades bias for variance: the
 // weighted arms no longer represent the target population exactly. Zero
-// weights stay zero: the floor never brings back a unit the estimand excludes.
-func (w *Weights) Truncate(lo, hi float64) *Weights {
+// weights stay zero and do not enter the percentiles: the floor never brings
+// back a unit the estimand excludes. TruncateWithinArms is the per-arm
+// alternative.
+func (w *Weights) Truncate(lo, hi float64) *Weights { return w.truncate(lo, hi, true) }
+
+// TruncateWithinArms floors and caps each arm's weights at the lo-th and
+// hi-th percentiles of that arm's own weights (zero weights included in the
+// percentiles, and kept at zero). It is not the convention of Cole & Hernán
+// (2008), which Truncate follows; it guarantees that each arm has its own
+// share of truncated weights (at most about lo% + hi% of each arm), whatever
+// the arms' scales.
+func (w *Weights) TruncateWithinArms(lo, hi float64) *Weights { return w.truncate(lo, hi, false) }
+
+func (w *Weights) truncate(lo, hi float64, pooled bool) *Weights {
 	if err := w.Err(); err != nil {
 		return &Weights{err: err}
 	}
@@ -294,19 +323,47 @@ func (w *Weights) Truncate(lo, hi float64) *Weights {
 	d := w.Scores.Design
 	var w1, w0 []float64
 	for i, v := range w.W {
+		if pooled && v == 0 {
+			continue
+		}
 		if d.T[i] == 1 {
 			w1 = append(w1, v)
 		} else {
 			w0 = append(w0, v)
 		}
 	}
-	sort.Float64s(w1)
-	sort.Float64s(w0)
-	tr := &Truncation{LoPercentile: lo, HiPercentile: hi,
-		Treated: Interval{quantileSorted(w1, lo/100), quantileSorted(w1, hi/100)},
-		Control: Interval{quantileSorted(w0, lo/100), quantileSorted(w0, hi/100)}}
+	tr := &Truncation{LoPercentile: lo, HiPercentile: hi, Pooled: pooled}
+	if pooled {
+		m1, m0 := floats.Sum(w1)/float64(len(w1)), floats.Sum(w0)/float64(len(w0))
+		s := make([]float64, 0, len(w1)+len(w0))
+		for _, v := range w1 {
+			s = append(s, v/m1)
+		}
+		for _, v := range w0 {
+			s = append(s, v/m0)
+		}
+		sort.Float64s(s)
+		l, u := quantileSorted(s, lo/100), quantileSorted(s, hi/100)
+		tr.Stabilised = Interval{l, u}
+		tr.Treated, tr.Control = Interval{l * m1, u * m1}, Interval{l * m0, u * m0}
+		if len(w1) == 0 {
+			tr.Treated = Interval{}
+		}
+		if len(w0) == 0 {
+			tr.Control = Interval{}
+		}
+	} else {
+		sort.Float64s(w1)
+		sort.Float64s(w0)
+		tr.Treated = Interval{quantileSorted(w1, lo/100), quantileSorted(w1, hi/100)}
+		tr.Control = Interval{quantileSorted(w0, lo/100), quantileSorted(w0, hi/100)}
+	}
+	scope := "pooled percentiles"
+	if !pooled {
+		scope = "percentiles within arms"
+	}
 	out := &Weights{Scores: w.Scores, Estimand: w.Estimand, W: make([]float64, len(w.W)), Truncation: tr,
-		Label: fmt.Sprintf("%s truncated at percentiles %g–%g", w.Label, lo, hi)}
+		Label: fmt.Sprintf("%s truncated at %s %g–%g", w.Label, scope, lo, hi)}
 	for i, v := range w.W {
 		b := tr.Control
 		if d.T[i] == 1 {
@@ -323,6 +380,14 @@ func (w *Weights) Truncate(lo, hi float64) *Weights {
 	}
 	out.summarise()
 	return out
+}
+
+// Description says how the weights were truncated, for the text and HTML views.
+func (t *Truncation) Description() string {
+	if t.Pooled {
+		return fmt.Sprintf("truncated at the pooled percentiles %g and %g of the stabilised weights (Cole & Hernán 2008)", t.LoPercentile, t.HiPercentile)
+	}
+	return fmt.Sprintf("truncated within each arm at percentiles %g and %g", t.LoPercentile, t.HiPercentile)
 }
 
 // quantileSorted is the type-7 quantile (linear interpolation between order
@@ -365,8 +430,8 @@ func (w *Weights) String() string {
 		fmt.Fprintf(&b, "  %d unit%s weight 0 and drop%s out\n", w.Zero, plural(w.Zero, " has", "s have"), plural(w.Zero, "s", ""))
 	}
 	if t := w.Truncation; t != nil {
-		fmt.Fprintf(&b, "  truncated within each arm at percentiles %g and %g: %d weight%s moved (treated [%.4g, %.4g], control [%.4g, %.4g])\n",
-			t.LoPercentile, t.HiPercentile, t.Changed, plural(t.Changed, "", "s"), t.Treated.Lo, t.Treated.Hi, t.Control.Lo, t.Control.Hi)
+		fmt.Fprintf(&b, "  %s: %d weight%s moved (treated [%.4g, %.4g], control [%.4g, %.4g])\n",
+			t.Description(), t.Changed, plural(t.Changed, "", "s"), t.Treated.Lo, t.Treated.Hi, t.Control.Lo, t.Control.Hi)
 	}
 	return b.String()
 }
@@ -389,6 +454,7 @@ func (w *Weights) MarshalJSON() ([]byte, error) {
 		Treated Interval `json:"treated_bounds"`
 		Control Interval `json:"control_bounds"`
 		Changed int      `json:"changed"`
+		Scope   string   `json:"scope"`
 	}
 	out := struct {
 		Estimand   string `json:"estimand,omitempty"`
@@ -404,7 +470,11 @@ func (w *Weights) MarshalJSON() ([]byte, error) {
 		out.Estimand = w.Estimand.String()
 	}
 	if t := w.Truncation; t != nil {
-		out.Truncation = &trunc{t.LoPercentile, t.HiPercentile, t.Treated, t.Control, t.Changed}
+		scope := "within_arms"
+		if t.Pooled {
+			scope = "pooled_stabilised"
+		}
+		out.Truncation = &trunc{t.LoPercentile, t.HiPercentile, t.Treated, t.Control, t.Changed, scope}
 	}
 	return json.Marshal(out)
 }

@@ -174,6 +174,31 @@ func TestE2ENotebooks(t *testing.T) {
 	if charts["smoke"] != 2 {
 		t.Errorf("the smoke notebook shows 2 charts; found %d chart containers", charts["smoke"])
 	}
+	// The lab draws every experiment: erosion 1, extrapolation 2 and the fitted lines 1, trimming 2.
+	if charts["lab"] != 6 {
+		t.Errorf("the lab notebook shows 6 charts; found %d chart containers", charts["lab"])
+	}
+	// The lab's student copy (counterpart handout): no solution cell, no output, and it runs with no
+	// failed cell, drawing the same charts.
+	student := filepath.Join(tmp, "lab-student.ipynb")
+	if out, err := run("handout", filepath.Join(repo, "notebooks", "lab.ipynb"), "--out", student); err != nil {
+		t.Errorf("handout of the lab failed: %v\n%s", err, out)
+	} else if raw, err := os.ReadFile(student); err != nil {
+		t.Errorf("handout wrote no student copy: %v", err)
+	} else if strings.Contains(string(raw), `"solution"`) || strings.Contains(string(raw), `"output_type"`) {
+		t.Errorf("the student copy still holds a solution cell or an output")
+	} else {
+		page := filepath.Join(outDir, "lab-student.html")
+		t0 := time.Now()
+		if out, err := run("run", student, "--html", page); err != nil {
+			t.Errorf("lab-student: run failed: %v\n%s", err, out)
+		} else {
+			t.Logf("lab-student executed and exported in %s", time.Since(t0).Round(100*time.Millisecond))
+			if n := checkPage(t, ctx, browser, tmp, "lab-student", page); n != charts["lab"] {
+				t.Errorf("the lab's student copy shows %d charts; the lab shows %d", n, charts["lab"])
+			}
+		}
+	}
 
 	// The classic Notebook UI (RequireJS loaded by the page) draws a trusted saved notebook's charts;
 	// the second chart's cell holds no copy of ECharts and draws with the first one's.

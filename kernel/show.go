@@ -1,13 +1,3 @@
-// Package kernel is the only part of counterpart that talks to Jupyter through
-// the GoNB kernel. It shows results (Show), reports progress (Progress) and
-// finds the ECharts library that charts need. Outside a notebook the same
-// calls print plain text, so code runs unchanged in a terminal or a test.
-//
-// In a notebook cell:
-//
-//	import "github.com/counterpartlab/counterpart/kernel"
-//	%%
-//	kernel.Show(result, chart, err)
 package kernel
 
 import (

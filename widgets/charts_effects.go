@@ -25,6 +25,10 @@ func estimatorName(e causal.Estimator) string {
 		return "AIPW (doubly robust)"
 	case causal.OverlapWeighted:
 		return "overlap weights"
+	case causal.NearestNeighbourMatching:
+		return "nearest-neighbour matching (1:1, logit score)"
+	case causal.Subclassification:
+		return "subclassification (score quintiles)"
 	}
 	return e.String()
 }
@@ -44,6 +48,10 @@ func estimatorShort(e causal.Estimator) string {
 		return "AIPW"
 	case causal.OverlapWeighted:
 		return "overlap weights"
+	case causal.NearestNeighbourMatching:
+		return "matching"
+	case causal.Subclassification:
+		return "subclassification"
 	}
 	return e.String()
 }

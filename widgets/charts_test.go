@@ -35,6 +35,8 @@ var chartBuilders = []builtChart{
 	{"TrimmedHistogram", func(r resultSet) (Chart, error) { return TrimmedHistogram(r.Trimmed) }},
 	{"BootstrapHistogram", func(r resultSet) (Chart, error) { return BootstrapHistogram(r.Bootstrap) }},
 	{"TrimmingSweep", func(r resultSet) (Chart, error) { return TrimmingSweep(r.Sweep) }},
+	{"MatchedPairs", func(r resultSet) (Chart, error) { return MatchedPairs(r.Matching) }},
+	{"StrataCounts", func(r resultSet) (Chart, error) { return StrataCounts(r.Strata) }},
 }
 
 // curveBuilders need outcome models that can be fitted (not the water

@@ -18,7 +18,8 @@ var reportCautions = template.Must(template.New("cautions").Parse(`<section clas
 
 // ReportPage is the self-contained HTML page of a report: its header, the
 // verdict, then the views of every part (propensity model, support by arm,
-// positivity cells, balance, trimming, estimates, bootstrap) and the
+// positivity cells, balance, trimming, estimates, matching and strata,
+// bootstrap) and the
 // cautions. echartsJS is the ECharts bundle to inline (nil: the charts show
 // their static pictures and a note says how to get interactive ones). Every
 // string from the data is escaped.
@@ -55,6 +56,12 @@ func ReportPage(r *causal.Report, echartsJS []byte) string {
 		body = append(body, HTML(r.Trimmed))
 	}
 	body = append(body, HTML(&causal.Estimates{Estimand: r.Options.Estimand, Items: r.Estimates}))
+	if r.Matching != nil {
+		body = append(body, HTML(r.Matching))
+	}
+	if r.Strata != nil {
+		body = append(body, HTML(r.Strata))
+	}
 	if r.Bootstrap != nil {
 		body = append(body, HTML(r.Bootstrap))
 	}

@@ -252,11 +252,18 @@ func supportTable(s *causal.Support) table {
 
 // profileTable shows how the units outside the band differ from the rest.
 func profileTable(s *causal.Support) table {
-	rows := append([]causal.ProfileRow(nil), s.Profile...)
+	return profileRowsTable(s.Profile, "Who lies outside the band: units outside versus inside, largest differences first", "mean outside", "mean inside")
+}
+
+// profileRowsTable lists profile rows, largest |SMD| first (at most 10);
+// outside and inside head the columns of ProfileRow.MeanOutside and
+// MeanInside.
+func profileRowsTable(profile []causal.ProfileRow, caption, outside, inside string) table {
+	rows := append([]causal.ProfileRow(nil), profile...)
 	sort.SliceStable(rows, func(i, j int) bool { return absOrZero(rows[i].SMD) > absOrZero(rows[j].SMD) })
 	t := table{
-		Caption: "Who lies outside the band: units outside versus inside, largest differences first",
-		Head:    []tableCell{headText("term"), headNum("mean outside"), headNum("mean inside"), headNum("SMD")},
+		Caption: caption,
+		Head:    []tableCell{headText("term"), headNum(outside), headNum(inside), headNum("SMD")},
 	}
 	const shown = 10
 	for i, r := range rows {
@@ -565,8 +572,8 @@ func weightsTable(w *causal.Weights) table {
 		notes = append(notes, fmt.Sprintf("%s units have weight 0 and drop out.", formatCount(w.Zero)))
 	}
 	if tr := w.Truncation; tr != nil {
-		notes = append(notes, fmt.Sprintf("Truncated within each arm at percentiles %s and %s: %s weights moved (treated to [%s, %s], control to [%s, %s]).",
-			formatNumber(tr.LoPercentile), formatNumber(tr.HiPercentile), formatCount(tr.Changed),
+		notes = append(notes, fmt.Sprintf("%s: %s weights moved (treated to [%s, %s], control to [%s, %s]).",
+			capitalize(tr.Description()), formatCount(tr.Changed),
 			formatNumber(tr.Treated.Lo), formatNumber(tr.Treated.Hi), formatNumber(tr.Control.Lo), formatNumber(tr.Control.Hi)))
 	}
 	t.Note = strings.Join(notes, " ")
@@ -674,25 +681,7 @@ func trimmedTable(t *causal.Trimmed) table {
 
 // trimmedProfileTable compares dropped with kept units.
 func trimmedProfileTable(t *causal.Trimmed) table {
-	rows := append([]causal.ProfileRow(nil), t.Profile...)
-	sort.SliceStable(rows, func(i, j int) bool { return absOrZero(rows[i].SMD) > absOrZero(rows[j].SMD) })
-	tb := table{
-		Caption: "Who was dropped: dropped versus kept units, largest differences first",
-		Head:    []tableCell{headText("term"), headNum("mean dropped"), headNum("mean kept"), headNum("SMD")},
-	}
-	const shown = 10
-	for i, r := range rows {
-		if i == shown {
-			break
-		}
-		c := numCell(formatSigned(r.SMD, 2))
-		if math.Abs(r.SMD) > smdReference {
-			c.Tone = toneWarn
-		}
-		tb.Rows = append(tb.Rows, tableRow{Cells: []tableCell{textCell(r.Term), numCell(formatNumber(r.MeanOutside)), numCell(formatNumber(r.MeanInside)), c}})
-	}
-	tb.Note = moreRows(min(len(rows), shown), len(rows), "terms")
-	return tb
+	return profileRowsTable(t.Profile, "Who was dropped: dropped versus kept units, largest differences first", "mean dropped", "mean kept")
 }
 
 // bootstrapTable summarises a bootstrap run.

@@ -24,7 +24,7 @@ type Viewer interface {
 // *causal.Erosion, *causal.BalanceSheet, *causal.Verdict, *causal.Weights,
 // *causal.Effect, *causal.Estimates, *causal.Trimmed, *causal.Bootstrap,
 // *causal.Sweep, *causal.ExtrapolationAudit, *causal.ExtrapolationCurve,
-// and errors; any
+// *causal.Matching, *causal.Strata, and errors; any
 // other value with HTML and String methods is passed through, and anything
 // else is shown as escaped text.
 //
@@ -114,6 +114,10 @@ func (v resultView) HTML() (out string) {
 		return compose("extrapolation", headline(x), extrapolationParts(x))
 	case *causal.ExtrapolationCurve:
 		return compose("extrapolation-curve", headline(x), curveParts(x))
+	case *causal.Matching:
+		return compose("matching", headline(x), matchingParts(x))
+	case *causal.Strata:
+		return compose("strata", headline(x), strataParts(x))
 	case Viewer:
 		return x.HTML()
 	case interface{ HTML() string }:
@@ -193,6 +197,7 @@ func scoresParts(s *causal.Scores) []string {
 		separationHTML(s),
 		chartPart(CalibrationPlot(s)),
 		notePart("Each point is a tenth of the units, grouped by fitted score. Points near the diagonal: the scores match how often units are treated; a systematic bend suggests the model's form misses part of how treatment depends on the covariates."),
+		calibrationTable(s).HTML(),
 		termsTable(s).HTML(),
 	}
 }
@@ -279,6 +284,10 @@ func typeHeadline(x any) string {
 		return extrapolationHeadline(v)
 	case *causal.ExtrapolationCurve:
 		return curveHeadline(v)
+	case *causal.Matching:
+		return matchingHeadline(v)
+	case *causal.Strata:
+		return strataHeadline(v)
 	}
 	return ""
 }
@@ -318,7 +327,7 @@ func extrapolationParts(a *causal.ExtrapolationAudit) []string {
 			parts = append(parts, chartPart(ExtrapolationPlot(c)), notePart(heldNote(c)))
 		}
 	}
-	parts = append(parts, extrapolationTable(a).HTML())
+	parts = append(parts, extrapolationTable(a).HTML(), notePart("Unsupported: outside the fitting arm's range on a term, or "+causal.LeverageRule+"."))
 	if tr := termRangesTable(a); len(tr.Rows) > 0 {
 		parts = append(parts, tr.HTML())
 	}

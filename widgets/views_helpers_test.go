@@ -93,11 +93,13 @@ type resultSet struct {
 	Sweep     *causal.Sweep
 	Audit     *causal.ExtrapolationAudit
 	Curve     *causal.ExtrapolationCurve
+	Matching  *causal.Matching
+	Strata    *causal.Strata
 }
 
 func (r resultSet) all() []any {
 	return []any{r.Scores, r.Support, r.Cells2, r.Cells3, r.Erosion, r.Balance, r.Weighted, r.Weights, r.Verdict,
-		r.Effect, r.Estimates, r.Trimmed, r.TrimmedEs, r.Bootstrap, r.Sweep, r.Audit, r.Curve}
+		r.Effect, r.Estimates, r.Trimmed, r.TrimmedEs, r.Bootstrap, r.Sweep, r.Audit, r.Curve, r.Matching, r.Strata}
 }
 
 // resultsOf computes every result of s: c1 and c2 are the covariates of
@@ -125,6 +127,8 @@ func resultsOf(t testing.TB, s *causal.Study, c1, c2, c3 string, alphas ...float
 	r.Sweep = sc.Sweep(causal.IPWNormalized, causal.ATE, alphas...)
 	r.Audit = sc.Extrapolation(causal.ATE)
 	r.Curve = r.Audit.Curve(c1)
+	r.Matching = sc.Match(causal.MatchOptions{Estimand: causal.ATE, Caliper: causal.AustinCaliper})
+	r.Strata = sc.Subclassify(0)
 	for _, x := range r.all() {
 		if x == any(r.Audit) || x == any(r.Curve) {
 			continue // regression adjustment can fail where positivity does (checked where it matters)

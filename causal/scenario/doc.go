@@ -22,6 +22,8 @@
 //     design, with correctly and wrongly specified covariates.
 //   - [RandomisedSimple]: a well-behaved randomised design with a known ATE,
 //     for coverage simulations.
+//   - [SteepScores]: steep true scores and an effect that grows away from
+//     the centre, to show what trimming extreme scores gains and costs.
 //
 // Each returns a [Data] value: named columns (numbers or strings), the true
 // sample ATE and ATT, per-unit true quantities that only a simulation knows

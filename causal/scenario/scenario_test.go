@@ -23,6 +23,7 @@ var generators = []struct {
 	{"KangSchafer", func(s uint64) (*Data, error) { return KangSchafer(s, 300) }},
 	{"RandomisedSimple", func(s uint64) (*Data, error) { return RandomisedSimple(s, 300, 1.5) }},
 	{"Wide", func(s uint64) (*Data, error) { return Wide(s, 300, 9) }},
+	{"SteepScores", func(s uint64) (*Data, error) { return SteepScores(s, 300, 2.5) }},
 }
 
 func csvBytes(t *testing.T, d *Data) []byte {
@@ -128,6 +129,8 @@ func TestArgumentErrors(t *testing.T) {
 		{"wide n", "n = 2", func() (*Data, error) { return Wide(1, 2, 5) }},
 		{"wide p", "p = 0", func() (*Data, error) { return Wide(1, 100, 0) }},
 		{"wide n·p", "n·p", func() (*Data, error) { return Wide(1, maxCells/2, 20) }},
+		{"steep n", "n = 2", func() (*Data, error) { return SteepScores(1, 2, 2.5) }},
+		{"steep slope", "slope", func() (*Data, error) { return SteepScores(1, 100, math.Inf(-1)) }},
 	}
 	for _, c := range cases {
 		d, err := c.call()
@@ -352,4 +355,33 @@ func TestWide(t *testing.T) {
 	}
 	within(t, "sample ATE", d.TrueATE, 1+0.5*stat.Mean(d.Num["x1"], nil), 1e-3) // rounding of y to 4 decimals
 	within(t, "sample ATE around the population ATE", d.TrueATE, 1, 4*0.5/math.Sqrt(n))
+}
+
+// TestSteepScoresTruth checks SteepScores against its design: the sample ATE
+// is the mean of 2 + x² with x ~ N(0, 1), whose expectation is 3 and whose
+// variance is Var(x²) = 2 (moments of the normal distribution), so it lies
+// within 4·sqrt(2/n) of 3; the share treated is E[expit(2.5x)] = 1/2 by
+// symmetry, within 4 binomial standard deviations; and y(1) − y(0) = 2 + x².
+func TestSteepScoresTruth(t *testing.T) {
+	const n = 20000
+	d, err := SteepScores(7, n, 2.5)
+	if err != nil {
+		t.Fatal(err)
+	}
+	within(t, "sample ATE", d.TrueATE, SteepScoresATE, 4*math.Sqrt(2.0/n))
+	within(t, "share treated", float64(count(d.Num["t"]))/n, 0.5, 4*math.Sqrt(0.25/n))
+	for i, x := range d.Num["x"] {
+		within(t, "y1 - y0", d.Truth["y1"][i]-d.Truth["y0"][i], 2+x*x, 2e-6)
+		if i > 50 {
+			break
+		}
+	}
+	extreme := 0
+	for _, p := range d.Truth["propensity"] {
+		if p < 0.05 || p > 0.95 {
+			extreme++
+		}
+	}
+	// P(|2.5x| > logit(0.95) = 2.944) = P(|x| > 1.178) = 0.239 (normal table).
+	within(t, "share with true score outside [0.05, 0.95]", float64(extreme)/n, 0.239, 4*math.Sqrt(0.239*0.761/n)+0.002)
 }

@@ -108,7 +108,11 @@ stopifnot(abs(W / (n1 * n0) - auc) < 1e-12)
 # 3. Balance
 #   binary (only 0/1):  SMD = (p1 - p0) / sqrt((p1(1-p1) + p0(1-p0))/2)
 #   otherwise:          SMD = (m1 - m0) / sqrt((s1^2 + s0^2)/2)
-#   weighted:           m_a = sum w x / sum w,  s_a^2 = sum w (x - m_a)^2 / (sum w - sum w^2 / sum w)
+#   weighted:           m_a = sum w x / sum w; the denominator stays the UNWEIGHTED one above, before and
+#                       after weighting, so that a change of the SMD reflects the means only (Rosenbaum &
+#                       Rubin 1985; Stuart 2010). The option with weighted arm variances (Austin & Stuart
+#                       2015) is balance_weighted_ate_weighted_sd:
+#                       s_a^2 = sum w (x - m_a)^2 / (sum w - sum w^2 / sum w)
 #                       (all w = 1 gives the n_a - 1 sample variance)
 #   variance ratio = s1^2 / s0^2 (null for binary columns)
 #   KS = ks.test(x[treat==1], x[treat==0])$statistic (unweighted only)
@@ -116,16 +120,19 @@ stopifnot(abs(W / (n1 * n0) - auc) < 1e-12)
 is_binary <- function(x) all(x %in% c(0, 1))
 wmean <- function(x, w) sum(w * x) / sum(w)
 wvar <- function(x, w) { m <- wmean(x, w); sum(w * (x - m)^2) / (sum(w) - sum(w^2) / sum(w)) }
-smd_w <- function(x, w) {
+smd_w <- function(x, w, weighted_sd = TRUE) {
   x1 <- x[Tr == 1]; w1 <- w[Tr == 1]; x0 <- x[Tr == 0]; w0 <- w[Tr == 0]
   m1 <- wmean(x1, w1); m0 <- wmean(x0, w0)
+  # the arms' spread: weighted (Austin & Stuart 2015) or unweighted (w = 1)
+  sw1 <- if (weighted_sd) w1 else rep(1, length(x1)); sw0 <- if (weighted_sd) w0 else rep(1, length(x0))
   if (is_binary(x)) {
-    smd <- (m1 - m0) / sqrt((m1 * (1 - m1) + m0 * (1 - m0)) / 2)
+    p1 <- wmean(x1, sw1); p0 <- wmean(x0, sw0)
+    smd <- (m1 - m0) / sqrt((p1 * (1 - p1) + p0 * (1 - p0)) / 2)
     vr <- NA
   } else {
-    v1 <- wvar(x1, w1); v0 <- wvar(x0, w0)
+    v1 <- wvar(x1, sw1); v0 <- wvar(x0, sw0)
     smd <- (m1 - m0) / sqrt((v1 + v0) / 2)
-    vr <- v1 / v0
+    vr <- wvar(x1, w1) / wvar(x0, w0)
   }
   list(smd = smd, variance_ratio = vr, mean_treated = m1, mean_control = m0)
 }
@@ -145,16 +152,19 @@ for (v in covs) {
 w_ate <- Tr / e + (1 - Tr) / (1 - e)
 w_att <- Tr + (1 - Tr) * e / (1 - e)
 w_ato <- Tr * (1 - e) + (1 - Tr) * e
-weighted_balance <- function(w) {
+weighted_balance <- function(w, weighted_sd = FALSE) {
   res <- list()
   for (v in covs) {
-    b <- smd_w(d[[v]], w)
+    b <- smd_w(d[[v]], w, weighted_sd)
     res[[v]] <- list(smd = b$smd, mean_treated = b$mean_treated, mean_control = b$mean_control)
   }
   res
 }
 balance_weighted_ate <- weighted_balance(w_ate)
 balance_weighted_ato <- weighted_balance(w_ato)
+balance_weighted_ate_weighted_sd <- weighted_balance(w_ate, weighted_sd = TRUE)
+# with unit weights both denominators are the unweighted one
+stopifnot(all(vapply(covs, function(v) abs(smd_w(d[[v]], ones, TRUE)$smd - smd_w(d[[v]], ones, FALSE)$smd) < 1e-15, TRUE)))
 kish <- function(w) sum(w)^2 / sum(w^2)
 ess <- list()
 for (nm in c("ate", "att", "ato")) {
@@ -206,7 +216,7 @@ add_est("difference_in_means", "ATE", dim_value, dim_se, "unpooled variances")
 # Regression adjustment. Target set U (all / treated / controls), m = |U|:
 #   tau = mean_{i in U} [f1(x_i) - f0(x_i)] = xbar' (b1 - b0)
 #   Var = xbar' (V1 + V0) xbar + (b1 - b0)' S (b1 - b0) / m,  S = cov(X[U, ]) (n - 1 form)
-reg_adj <- function(idx) {
+reg_adj <- function(idx, V1 = vcov(f1), V0 = vcov(f0)) {
   XU <- X[idx, , drop = FALSE]
   xbar <- colMeans(XU)
   db <- b1 - b0
@@ -219,6 +229,28 @@ reg_adj <- function(idx) {
 ra <- reg_adj(seq_len(n));  add_est("regression_adjustment", "ATE", ra[1], ra[2], "delta method")
 ra <- reg_adj(which(Tr == 1)); add_est("regression_adjustment", "ATT", ra[1], ra[2], "delta method")
 ra <- reg_adj(which(Tr == 0)); add_est("regression_adjustment", "ATC", ra[1], ra[2], "delta method")
+
+# Heteroskedasticity-robust (sandwich) covariances of the arm models, by formula (no contributed package):
+#   V_a = (X'X)^{-1} (sum_i omega_i x_i x_i') (X'X)^{-1} over the arm's units, r_i the lm residual,
+#   h_i = x_i'(X'X)^{-1} x_i (hatvalues), k = number of coefficients, n_a units:
+#   HC0 omega = r^2 (White 1980); HC1 omega = r^2 n_a / (n_a - k); HC3 omega = r^2 / (1 - h)^2
+#   (MacKinnon & White 1985). The regression-adjustment SE then uses V_a in the same delta-method formula.
+hc_vcov <- function(f, type) {
+  Xa <- model.matrix(f); r <- as.numeric(resid(f)); h <- as.numeric(hatvalues(f)); na <- nrow(Xa); k <- ncol(Xa)
+  stopifnot(max(abs(h - rowSums((Xa %*% solve(crossprod(Xa))) * Xa))) < 1e-10)
+  omega <- switch(type, HC0 = r^2, HC1 = r^2 * na / (na - k), HC3 = r^2 / (1 - h)^2)
+  Bi <- solve(crossprod(Xa))
+  Bi %*% crossprod(Xa * omega, Xa) %*% Bi
+}
+regression_adjustment_hc <- list()
+for (type in c("HC0", "HC1", "HC3")) {
+  V1h <- hc_vcov(f1, type); V0h <- hc_vcov(f0, type)
+  for (tg in c("ATE", "ATT", "ATC")) {
+    idx <- switch(tg, ATE = seq_len(n), ATT = which(Tr == 1), ATC = which(Tr == 0))
+    ra <- reg_adj(idx, V1h, V0h)
+    regression_adjustment_hc[[length(regression_adjustment_hc) + 1]] <- list(estimand = tg, covariance = type, value = ra[1], se = ra[2])
+  }
+}
 
 # ---- Stacked M-estimation sandwich for the weighting estimators ------------------------------
 # theta = (beta (p), mu1, mu0). g_i(theta) = [ x_i (T_i - e_i) ; g1_i ; g0_i ],  e_i = plogis(x_i' beta).
@@ -551,6 +583,65 @@ stopifnot(abs(mean(psi_c)) < 1e-6)
 add_more("aipw", "ATC", aipw_atc, sqrt(sum(psi_c^2)) / n, "influence function", c_mu1, c_mu0)
 
 # ---------------------------------------------------------------------------------------------
+# 8b. Weight truncation. Pooled (Cole & Hernan 2008: stabilised weights truncated at percentiles of their
+#     distribution over all units): arm a's positive weights divided by their mean m_a, s = w / m_a;
+#     L, U = quantile(s, c(lo, hi) / 100, type = 7) over all units with w > 0; arm a's weights moved into
+#     [L m_a, U m_a]; zero weights stay zero. Within arms (the option): each arm's weights moved into
+#     its own quantile(w_a, c(lo, hi) / 100, type = 7). Kish ESS per arm after truncation.
+# ---------------------------------------------------------------------------------------------
+truncate_weights <- function(w, Tr, lo, hi, pooled) {
+  if (pooled) {
+    pos <- w > 0
+    m <- c(mean(w[Tr == 1 & pos]), mean(w[Tr == 0 & pos]))
+    s <- ifelse(Tr == 1, w / m[1], w / m[2])
+    q <- unname(quantile(s[pos], c(lo, hi) / 100, type = 7))
+    b1 <- q * m[1]; b0 <- q * m[2]
+  } else {
+    b1 <- unname(quantile(w[Tr == 1], c(lo, hi) / 100, type = 7))
+    b0 <- unname(quantile(w[Tr == 0], c(lo, hi) / 100, type = 7))
+  }
+  lo_b <- ifelse(Tr == 1, b1[1], b0[1]); hi_b <- ifelse(Tr == 1, b1[2], b0[2])
+  wt <- ifelse(w == 0, 0, pmin(pmax(w, lo_b), hi_b))
+  list(lo_percentile = lo, hi_percentile = hi, pooled = pooled,
+       treated_bounds = arr(b1), control_bounds = arr(b0), changed = sum(wt != w),
+       ess_treated = kish(wt[Tr == 1]), ess_control = kish(wt[Tr == 0]))
+}
+ew_ate <- Tw / ew + (1 - Tw) / (1 - ew)
+truncation <- list(
+  water_ate_pooled_1_99 = truncate_weights(ew_ate, Tw, 1, 99, TRUE),
+  water_ate_within_arms_1_99 = truncate_weights(ew_ate, Tw, 1, 99, FALSE),
+  nsw_ate_pooled_5_95 = truncate_weights(w_ate, Tr, 5, 95, TRUE)
+)
+
+# ---------------------------------------------------------------------------------------------
+# 9. Calibration of the propensity scores (Hosmer & Lemeshow 1980, deciles of risk), by the textbook
+#    formula on the glm fitted scores of section 2 (NSW) and section 7 (water audits):
+#      breaks = unique(quantile(e, probs = seq(0, 1, 0.1), type = 7)); groups = cut(e, breaks,
+#      include.lowest = TRUE, right = TRUE); per group O = treated units, E = sum of e, n = units;
+#      C = sum (O - E)^2 / (E (1 - E / n)),  df = G - 2,  p = pchisq(C, df, lower.tail = FALSE).
+#    Tails: binom.test(O, n, E / n)$p.value (two-sided exact binomial) in the lowest and highest group.
+# ---------------------------------------------------------------------------------------------
+hosmer_lemeshow <- function(e, Tr) {
+  br <- unique(quantile(e, probs = seq(0, 1, 0.1), type = 7, names = FALSE))
+  g <- cut(e, breaks = br, include.lowest = TRUE, right = TRUE, labels = FALSE)
+  G0 <- length(br) - 1
+  n_g <- tabulate(g, G0)
+  O <- vapply(seq_len(G0), function(k) sum(Tr[g == k]), 0)
+  E <- vapply(seq_len(G0), function(k) sum(e[g == k]), 0)
+  keep <- n_g > 0
+  lo <- br[-length(br)][keep]; hi <- br[-1][keep]; n_g <- n_g[keep]; O <- O[keep]; E <- E[keep]
+  G <- length(n_g)
+  C <- sum((O - E)^2 / (E * (1 - E / n_g)))
+  df <- G - 2
+  tail_test <- function(k) list(n = n_g[k], observed_treated = O[k], expected_treated = E[k],
+                                mean_score = E[k] / n_g[k], p_value = binom.test(O[k], n_g[k], E[k] / n_g[k])$p.value)
+  list(statistic = C, df = df, p_value = pchisq(C, df, lower.tail = FALSE),
+       groups = list(lo = arr(lo), hi = arr(hi), n = arr(as.integer(n_g)), observed_treated = arr(O), expected_treated = arr(E)),
+       tails = list(lowest = tail_test(1), highest = tail_test(G)))
+}
+calibration <- list(nsw = hosmer_lemeshow(e, Tr), water_audits = hosmer_lemeshow(ew, Tw))
+
+# ---------------------------------------------------------------------------------------------
 # JSON
 # ---------------------------------------------------------------------------------------------
 res <- list(
@@ -580,6 +671,7 @@ res <- list(
   balance = balance,
   balance_weighted_ate = balance_weighted_ate,
   balance_weighted_ato = balance_weighted_ato,
+  balance_weighted_ate_weighted_sd = balance_weighted_ate_weighted_sd,
   ess = ess,
   categorical = list(
     data = "testdata/reference/nsw_schooling.csv",
@@ -595,6 +687,9 @@ res <- list(
   ),
   estimates = estimates,
   estimates_more = estimates_more,
+  regression_adjustment_hc = regression_adjustment_hc,
+  truncation = truncation,
+  calibration = calibration,
   separation = list(
     data = "testdata/reference/separation.csv",
     formula = "treat ~ x1 + gate",
@@ -632,5 +727,7 @@ cat("schooling reference level:", ref_level, "\n"); print(cfc)
 cat("separation, default control: warnings:", length(sep_default$warnings$v), " gate coef", sep_default$coef$v[3], " SE", sep_default$se$v[3], "\n")
 cat(sprintf("trimming (water audits): Crump alpha %.6f keeps %d of %d; percentile [%.6f, %.6f] keeps %d\n", cr$alpha,
             sum(ew >= cr$alpha & ew <= 1 - cr$alpha), nrow(wa), q5, q95, sum(keep_pct)))
+for (nm in names(calibration)) cat(sprintf("calibration (%s): Hosmer-Lemeshow C %.4f df %d p %.4g; tails p %.4g / %.4g\n", nm,
+  calibration[[nm]]$statistic, calibration[[nm]]$df, calibration[[nm]]$p_value, calibration[[nm]]$tails$lowest$p_value, calibration[[nm]]$tails$highest$p_value))
 for (x in trim_est) cat(sprintf("  after trimming at 0.1: %-22s %-4s %12.4f  SE %10.4f\n", x$estimator, x$estimand, x$value, x$se))
 cat("separation, epsilon 1e-12: warnings:", sep_tight$warnings$v, " gate coef", sep_tight$coef$v[3], " SE", sep_tight$se$v[3], "\n")

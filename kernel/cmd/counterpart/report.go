@@ -33,6 +33,7 @@ func reportCommand() *command {
 		treatedLevel := fs.String("treated-level", "", "the treatment value that means treated (when it is not 0/1 or true/false)")
 		estimand := fs.String("estimand", "ATE", "target estimand: ATE, ATT or ATO")
 		trim := fs.String("trim", "none", "trimming before estimation: none, a symmetric α such as 0.1 (scores kept in [α, 1−α]), or optimal (Crump et al. 2009)")
+		caliper := fs.Float64("caliper", 0, "caliper of the nearest_neighbour_matching estimate in SDs of the logit score (0: none; 0.2 is Austin 2011's advice)")
 		boot := fs.Int("bootstrap", 0, "bootstrap replicates for the primary estimator (0: none)")
 		seed := fs.Uint64("seed", 1, "seed of the bootstrap")
 		jsonOut := fs.String("json", "", "write the report JSON to FILE, or - for stdout")
@@ -93,7 +94,10 @@ func reportCommand() *command {
 		}
 		ctx, stop := signalContext()
 		defer stop()
-		opts := causal.ReportOptions{Estimand: est, Trim: *trim, Bootstrap: *boot, Seed: *seed, Context: ctx, Stage: clock.start}
+		if *caliper < 0 {
+			return fmt.Errorf("--caliper %g: use 0 (none) or a positive number of SDs of the logit score, e.g. 0.2", *caliper)
+		}
+		opts := causal.ReportOptions{Estimand: est, Trim: *trim, Caliper: *caliper, Bootstrap: *boot, Seed: *seed, Context: ctx, Stage: clock.start}
 		if *boot > 0 {
 			update, finish := kernel.Progress("bootstrap")
 			opts.Progress = update
