@@ -55,9 +55,14 @@ func TestBadInputColumns(t *testing.T) {
 	wantErr(t, err, `unknown column "y"`, "columns are: x, z, t")
 	err = studyFrom(t, base).Treat("T").Err()
 	wantErr(t, err, `did you mean "t"`)
-	// Non-numeric value in a numeric column names the row and the column.
+	// A column with a non-number is text; when that makes it unusable, the
+	// message names the column, the row and the value.
 	err = studyFrom(t, "x,t\n1,0\n2,1\n3x,0\n4,1\n5,0\n").Treat("t").Adjust("x").Err()
-	wantErr(t, err, `column "x", row 3`, `"3x"`)
+	wantErr(t, err, `covariate "x"`, `row 3 holds "3x"`)
+	err = studyFrom(t, "x,t\n1,0\n2,1\n3x,0\n4,1\n5,0\n").Treat("x").Outcome("t").Err()
+	wantErr(t, err, `treatment "x" has more than two values`)
+	err = studyFrom(t, "x,t\n1,0\n2,1\n3x,0\n4,1\n5,0\n").Treat("t").Outcome("x").Err()
+	wantErr(t, err, `outcome "x" is not numeric`, `row 3 holds "3x"`)
 	// NaN and Inf text.
 	err = studyFrom(t, "x,t\n1,0\nNaN,1\n3,0\n4,1\n").Treat("t").Adjust("x").Err()
 	wantErr(t, err, "row 2", "not a finite number")
@@ -92,7 +97,7 @@ func TestBadInputTreatment(t *testing.T) {
 	if err != nil || d.Treated != 2 || d.Control != 3 {
 		t.Fatalf("TreatedLevel: %v %+v", err, d)
 	}
-	wantErr(t, s.TreatedLevel("maybe").Err(), `"maybe" is not one of`)
+	wantErr(t, s.TreatedLevel("maybe").Err(), `.TreatedLevel("maybe") names a value it does not have`)
 	// true/false needs nothing.
 	d, err = studyFrom(t, "x,t\n1,false\n2,true\n3,false\n4,true\n").Treat("t").Adjust("x").Design()
 	if err != nil || d.Treated != 2 {

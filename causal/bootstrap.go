@@ -80,6 +80,33 @@ func (b *Bootstrap) Err() error {
 	return b.err
 }
 
+// Bootstrap statuses (Bootstrap.Status; "status" in its JSON).
+const (
+	BootstrapOK      = "ok"      // every replicate requested ran; at least 2 succeeded
+	BootstrapPartial = "partial" // cancelled before every replicate ran; at least 2 succeeded
+	BootstrapFailed  = "failed"  // it could not run, or fewer than 2 replicates succeeded
+)
+
+// Status says whether the bootstrap gave a standard error: BootstrapOK,
+// BootstrapPartial or BootstrapFailed, with why it failed (Err's message, or
+// how few replicates succeeded and the first failure).
+func (b *Bootstrap) Status() (status, why string) {
+	if err := b.Err(); err != nil {
+		return BootstrapFailed, strings.TrimPrefix(err.Error(), "bootstrap: ")
+	}
+	if k := len(b.Replicates); k < 2 {
+		why = fmt.Sprintf("%d of %d replicates succeeded: no standard error or interval", k, b.Done)
+		if b.FailReason != "" {
+			why += "; first failure: " + b.FailReason
+		}
+		return BootstrapFailed, why
+	}
+	if b.Partial {
+		return BootstrapPartial, ""
+	}
+	return BootstrapOK, ""
+}
+
 // Bootstrap runs the bootstrap of the estimator for the estimand. It stops
 // early when ctx is cancelled and returns what was done, marked Partial.
 func (sc *Scores) Bootstrap(ctx context.Context, est Estimator, target Estimand, o BootstrapOptions) *Bootstrap {
@@ -103,7 +130,7 @@ func (sc *Scores) Bootstrap(ctx context.Context, est Estimator, target Estimand,
 	}
 	d := sc.Design
 	if d.Y == nil {
-		bs.err = fmt.Errorf("bootstrap: no outcome: set one with .Outcome(\"column\")")
+		bs.err = settingErr("Outcome", "column", "bootstrap: no outcome: set one with ", "")
 		return bs
 	}
 	full, err := evaluate(sc, est, target, nil, nil, nil, false)
@@ -443,8 +470,19 @@ func (b *Bootstrap) refits() string {
 // MarshalJSON is the pipeline view: summaries and a 30-bin histogram of
 // the replicate estimates (bounded size).
 func (b *Bootstrap) MarshalJSON() ([]byte, error) {
-	if err := b.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+	if b == nil {
+		return failedJSON(b.Err())
+	}
+	if err := b.err; err != nil {
+		// What was asked for, with why it failed: the section stays in a report.
+		return json.Marshal(struct {
+			Status    string `json:"status"`
+			Error     string `json:"error"`
+			Estimator string `json:"estimator"`
+			Estimand  string `json:"estimand"`
+			Requested int    `json:"replicates_requested"`
+			Seed      uint64 `json:"seed"`
+		}{"failed", strings.TrimPrefix(err.Error(), "bootstrap: "), b.Estimator.String(), b.Estimand.String(), b.Requested, b.Seed})
 	}
 	type bin struct {
 		Lo    float64 `json:"lo"`
@@ -476,7 +514,10 @@ func (b *Bootstrap) MarshalJSON() ([]byte, error) {
 		}
 		return &[2]Num{Num(iv.Lo), Num(iv.Hi)}
 	}
+	status, why := b.Status()
 	return json.Marshal(struct {
+		Status     string   `json:"status"`
+		Error      string   `json:"error,omitempty"`
 		Estimator  string   `json:"estimator"`
 		Estimand   string   `json:"estimand"`
 		Estimate   Num      `json:"estimate"`
@@ -493,6 +534,6 @@ func (b *Bootstrap) MarshalJSON() ([]byte, error) {
 		Refits     string   `json:"refits"`
 		Notes      []string `json:"notes"`
 		Histogram  []bin    `json:"histogram"`
-	}{b.Estimator.String(), b.Estimand.String(), Num(b.Estimate), Num(b.SE), "bootstrap", Num(b.Bias), ci(b.Percentile), ci(b.Normal),
+	}{status, why, b.Estimator.String(), b.Estimand.String(), Num(b.Estimate), Num(b.SE), "bootstrap", Num(b.Bias), ci(b.Percentile), ci(b.Normal),
 		b.Requested, b.Done, b.Failed, b.Partial, b.Seed, b.refits(), append([]string{}, b.Notes...), hist})
 }

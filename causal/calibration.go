@@ -301,7 +301,7 @@ func (c *CalibrationTest) String() string {
 // MarshalJSON is the pipeline view (report field propensity.calibration_test).
 func (c *CalibrationTest) MarshalJSON() ([]byte, error) {
 	if err := c.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	type group struct {
 		Lo        Num `json:"lo"`

@@ -343,7 +343,7 @@ func (sc *Scores) effect(o EffectOptions, est Estimator, target Estimand, cells 
 	}
 	d := sc.Design
 	if d.Y == nil {
-		eff.err = fmt.Errorf("%s: no outcome: set one with .Outcome(\"column\")", est)
+		eff.err = settingErr("Outcome", "column", est.String()+": no outcome: set one with ", "")
 		return eff
 	}
 	eff.N, eff.NTreated, eff.NControl = d.N, d.Treated, d.Control
@@ -919,17 +919,27 @@ func (es *Estimates) Err() error {
 	return es.err
 }
 
-// Get returns the effect of one estimator, or nil.
+// Get returns the effect of one estimator. It never returns nil: when the
+// estimates failed as a whole, the effect carries their error (Err), and
+// when the estimator is not among them (it does not target the estimand),
+// an error that says so.
 func (es *Estimates) Get(est Estimator) *Effect {
 	if es == nil {
 		return &Effect{Estimator: est, err: errors.New("nil Estimates")}
 	}
+	nan := math.NaN()
+	failed := func(err error) *Effect {
+		return &Effect{Estimator: est, Estimand: es.Estimand, Value: nan, SE: nan, CI95: Interval{nan, nan}, err: err}
+	}
+	if es.err != nil {
+		return failed(es.err)
+	}
 	for _, e := range es.Items {
-		if e.Estimator == est {
+		if e != nil && e.Estimator == est {
 			return e
 		}
 	}
-	return nil
+	return failed(fmt.Errorf("%s: not among these estimates of the %s (it does not target that estimand)", est, es.Estimand))
 }
 
 // Effects estimates the estimand with every estimator that targets it:
@@ -1030,6 +1040,7 @@ type effectJSON struct {
 	Notes       []string `json:"notes"`
 	NullReason  string   `json:"null_reason,omitempty"`
 	Error       string   `json:"error,omitempty"`
+	Status      string   `json:"status,omitempty"` // "failed" with Error
 }
 
 func (e *Effect) toJSON() effectJSON {
@@ -1037,7 +1048,7 @@ func (e *Effect) toJSON() effectJSON {
 		SEMethod: e.SEMethod, N: e.N, NTreated: e.NTreated, NControl: e.NControl, Population: e.Population,
 		Supported: e.Supported, Unsupported: e.Unsupported, Flags: append([]Flag{}, e.Flags...), Notes: append([]string{}, e.Notes...)}
 	if e.err != nil {
-		j.Error = e.err.Error()
+		j.Error, j.Status = e.err.Error(), "failed"
 		j.NullReason = "not estimated: " + e.err.Error()
 		j.Supported = false
 		return j
@@ -1059,7 +1070,7 @@ func (e *Effect) toJSON() effectJSON {
 // and the flags; a value that cannot be given is null with null_reason.
 func (e *Effect) MarshalJSON() ([]byte, error) {
 	if e == nil {
-		return json.Marshal(errJSON{"nil Effect"})
+		return failedJSON(errors.New("nil Effect"))
 	}
 	return json.Marshal(e.toJSON())
 }
@@ -1067,7 +1078,7 @@ func (e *Effect) MarshalJSON() ([]byte, error) {
 // MarshalJSON writes the array of estimate entries.
 func (es *Estimates) MarshalJSON() ([]byte, error) {
 	if err := es.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	out := make([]effectJSON, 0, len(es.Items))
 	for _, e := range es.Items {

@@ -63,7 +63,7 @@ func (s *Study) ErosionWith(o CellOptions, greedy bool, columns ...string) *Eros
 		columns = s.covariates
 	}
 	if len(columns) == 0 {
-		return &Erosion{err: errors.New("erosion: no covariates: call .Adjust(...) or name columns")}
+		return &Erosion{err: settingErr("Adjust", "", "erosion: no covariates: set them with ", " or name columns")}
 	}
 	o = o.withDefaults()
 	codes, cuts, err := discretizeAll(s, d, columns, o.Bins, "erosion")

@@ -154,7 +154,7 @@ func (e *EValue) String() string {
 // MarshalJSON is the pipeline view.
 func (e *EValue) MarshalJSON() ([]byte, error) {
 	if err := e.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	var ci *[2]Num
 	if !math.IsNaN(e.CI.Lo) {

@@ -120,7 +120,7 @@ func ExampleStudy_DropIncomplete() {
 	d, _ := s.DropIncomplete().Design()
 	fmt.Println(d.N, "rows used,", d.RowsDropped, "dropped")
 	// Output:
-	// missing values in x (1): 1 row is incomplete; fill them in, or call .DropIncomplete() to drop those rows (the report then says how many were dropped)
+	// missing values in x (1): 1 row is incomplete; fill them in, or use .DropIncomplete() to drop those rows (the report then says how many were dropped)
 	// 5 rows used, 1 dropped
 }
 

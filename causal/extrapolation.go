@@ -117,7 +117,7 @@ func (sc *Scores) Extrapolation(target Estimand) *ExtrapolationAudit {
 	}
 	d := sc.Design
 	if d.Y == nil {
-		a.err = errors.New("extrapolation audit: no outcome: set one with .Outcome(\"column\")")
+		a.err = settingErr("Outcome", "column", "extrapolation audit: no outcome: set one with ", "")
 		return a
 	}
 	m1, m0, err := outcomeModels(d, nil, true)
@@ -291,7 +291,7 @@ func (a *ExtrapolationAudit) String() string {
 // MarshalJSON is the pipeline view.
 func (a *ExtrapolationAudit) MarshalJSON() ([]byte, error) {
 	if err := a.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	type model struct {
 		Model        string      `json:"model"`
@@ -554,7 +554,7 @@ func (c *ExtrapolationCurve) String() string {
 // MarshalJSON is the chart payload.
 func (c *ExtrapolationCurve) MarshalJSON() ([]byte, error) {
 	if err := c.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	return json.Marshal(struct {
 		Covariate    string       `json:"covariate"`

@@ -2,6 +2,7 @@ package causal
 
 import (
 	"encoding/json"
+	"errors"
 	"math"
 )
 
@@ -15,14 +16,62 @@ func (n Num) MarshalJSON() ([]byte, error) { return jsonNumber(float64(n)), nil 
 // IsNull reports whether the value encodes as null.
 func (n Num) IsNull() bool { return math.IsNaN(float64(n)) || math.IsInf(float64(n), 0) }
 
+// errJSON is the JSON face of every failed result: {"status":"failed",
+// "error":"why"}, so a failed result never encodes as an empty object.
 type errJSON struct {
-	Error string `json:"error"`
+	Status string `json:"status"`
+	Error  string `json:"error"`
+}
+
+func failedJSON(err error) ([]byte, error) { return json.Marshal(errJSON{"failed", err.Error()}) }
+
+// MarshalJSON is the pipeline view of a study: its source, size and roles
+// and, once the roles are complete, the rows used; a failed study encodes its
+// error.
+func (s *Study) MarshalJSON() ([]byte, error) {
+	if s == nil {
+		return failedJSON(errors.New("nil Study"))
+	}
+	if s.err != nil {
+		return failedJSON(s.err)
+	}
+	if s.src == nil {
+		return failedJSON(errors.New("no data: start with causal.Load or causal.FromSource"))
+	}
+	out := struct {
+		Status   string  `json:"status"`
+		File     string  `json:"file,omitempty"`
+		Rows     int     `json:"rows"`
+		Columns  int     `json:"columns"`
+		Roles    Roles   `json:"roles"`
+		RowsUsed *int    `json:"rows_used,omitempty"`
+		Problem  *string `json:"error,omitempty"`
+	}{Status: "ok", File: s.file, Rows: s.src.Rows(), Columns: len(s.src.Names()), Roles: s.Roles()}
+	if s.treat != "" {
+		if d, err := s.Design(); err != nil {
+			msg := err.Error()
+			out.Status, out.Problem = "failed", &msg
+		} else {
+			out.RowsUsed = &d.N
+		}
+	}
+	return json.Marshal(out)
+}
+
+// MarshalJSON writes the report JSON (schema counterpart.report/v1); a
+// report that was not built encodes its error.
+func (r *Report) MarshalJSON() ([]byte, error) {
+	if err := r.Err(); err != nil {
+		return failedJSON(err)
+	}
+	type plain Report
+	return json.Marshal((*plain)(r))
 }
 
 // MarshalJSON is the pipeline view of the propensity model.
 func (sc *Scores) MarshalJSON() ([]byte, error) {
 	if err := sc.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	type termJ struct {
 		Term      string `json:"term"`
@@ -72,7 +121,7 @@ func (sc *Scores) MarshalJSON() ([]byte, error) {
 // MarshalJSON is the pipeline view of support by arm.
 func (s *Support) MarshalJSON() ([]byte, error) {
 	if err := s.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	type ext struct {
 		Threshold    float64 `json:"threshold"`
@@ -128,7 +177,7 @@ func (s *Support) MarshalJSON() ([]byte, error) {
 // MarshalJSON is the pipeline view of a positivity table.
 func (c *Cells) MarshalJSON() ([]byte, error) {
 	if err := c.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	return json.Marshal(struct {
 		Columns          []string `json:"columns"`
@@ -149,7 +198,7 @@ func (c *Cells) MarshalJSON() ([]byte, error) {
 // MarshalJSON is the pipeline view of the erosion curve.
 func (e *Erosion) MarshalJSON() ([]byte, error) {
 	if err := e.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	return json.Marshal(struct {
 		Order  []string      `json:"order"`
@@ -163,7 +212,7 @@ func (e *Erosion) MarshalJSON() ([]byte, error) {
 // report contract: covariate, smd, variance_ratio, smd_weighted).
 func (b *BalanceSheet) MarshalJSON() ([]byte, error) {
 	if err := b.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	return json.Marshal(b.Rows)
 }

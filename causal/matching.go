@@ -1135,7 +1135,7 @@ func (m *Matching) String() string {
 // first data row under the header).
 func (m *Matching) MarshalJSON() ([]byte, error) {
 	if err := m.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	type arm struct {
 		Treated int `json:"treated"`

@@ -153,7 +153,7 @@ func (m *olsFit) predict(x []float64) float64 {
 // value among that arm's units), is an error that names the arm and the term.
 func outcomeModels(d *Design, fw []float64, withInverse bool) (m1, m0 *olsFit, err error) {
 	if d.Y == nil {
-		return nil, nil, fmt.Errorf("no outcome: set one with .Outcome(\"column\")")
+		return nil, nil, settingErr("Outcome", "column", "no outcome: set one with ", "")
 	}
 	acc1, acc0 := armCross(d, fw)
 	m1, err = solveOLS(d, acc1, "treated", 1, fw, withInverse)

@@ -5,7 +5,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"strconv"
 	"strings"
 )
 
@@ -35,7 +34,9 @@ type ReportOptions struct {
 	// Bootstrap replicates for the primary estimator (0: none) and the seed.
 	Bootstrap int
 	Seed      uint64
-	// Context cancels the bootstrap; Progress reports its replicates.
+	// Context cancels the report: between its stages (BuildReport then
+	// returns the context's error) and within the bootstrap (which stops
+	// early, marked Partial). Progress reports the bootstrap's replicates.
 	Context  context.Context
 	Progress func(done, total int)
 	// Stage, when set, is called with the name of each stage as it starts
@@ -107,9 +108,9 @@ func ParseTrim(s string) (TrimRule, bool, error) {
 	case "optimal", "crump":
 		return CrumpOptimal(), true, nil
 	}
-	a, err := strconv.ParseFloat(s, 64)
-	if err != nil || math.IsNaN(a) || a < 0 || a >= 0.5 {
-		return TrimRule{}, false, fmt.Errorf("trim %q: use none, optimal, or a number α with 0 ≤ α < 0.5 (scores kept in [α, 1−α]), e.g. 0.1", s)
+	a, kind := parseNumber(strings.TrimSpace(s)) // the data-file grammar: no 0x1p-3 or 1_0
+	if kind != numOK || a < 0 || a >= 0.5 {
+		return TrimRule{}, false, fmt.Errorf("trim %s: use none, optimal, or a number α with 0 ≤ α < 0.5 (scores kept in [α, 1−α]), e.g. 0.1", quoteValue(s))
 	}
 	if a == 0 {
 		return TrimRule{}, false, nil
@@ -170,7 +171,10 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		return nil, err
 	}
 	if d.Y == nil {
-		return nil, errors.New("no outcome column: name one (Outcome / --outcome)")
+		return nil, settingErr("Outcome", "column", "no outcome column: name one with ", "")
+	}
+	if err := cancelled(o.Context); err != nil {
+		return nil, err
 	}
 	stage("propensity")
 	sc := s.Propensity()
@@ -178,6 +182,9 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		return nil, err
 	}
 	r := &Report{Schema: ReportSchema, Study: s, Options: o, Cautions: append([]string(nil), Cautions...)}
+	if err := cancelled(o.Context); err != nil {
+		return nil, err
+	}
 	r.Data = ReportData{Rows: d.RowsTotal, RowsUsed: d.N, RowsDropped: d.RowsDropped, Treated: d.Treated, Control: d.Control}
 	r.Roles = d.Roles()
 	r.Propensity = sc
@@ -186,17 +193,19 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	var cells []*Cells
 	stage("cells")
 	if cols := discreteCovariates(d); len(cols) > 0 {
+		// The cells are an optional part: when they fail they stay in the
+		// report marked failed, and the verdict says it did not judge them.
 		r.Cells = s.Cells(cols...)
-		if err := r.Cells.Err(); err != nil {
-			return nil, err
+		if r.Cells.Err() == nil {
+			cells = append(cells, r.Cells)
 		}
-		cells = append(cells, r.Cells)
 	}
 	stage("verdict")
 	r.Verdict = sc.Verdict(VerdictOptions{}, cells...)
 	if err := r.Verdict.Err(); err != nil {
 		return nil, err
 	}
+	noteFailedCells(r.Verdict, r.Cells)
 	est := sc
 	if trim {
 		stage("trimming")
@@ -216,19 +225,23 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		r.Trimming = rt
 		est = tr.Scores
 		var tcells []*Cells
+		var c *Cells
 		if cols := discreteCovariates(tr.Design); len(cols) > 0 {
 			// The positivity cells of the kept units, by the kept design's rows.
-			c := tr.Cells(cols...)
-			if err := c.Err(); err != nil {
-				return nil, err
+			c = tr.Cells(cols...)
+			if c.Err() == nil {
+				tcells = append(tcells, c)
 			}
-			tcells = append(tcells, c)
 		}
 		r.trimmedCells = tcells
 		r.VerdictTrimmed = est.Verdict(VerdictOptions{}, tcells...)
 		if err := r.VerdictTrimmed.Err(); err != nil {
 			return nil, err
 		}
+		noteFailedCells(r.VerdictTrimmed, c)
+	}
+	if err := cancelled(o.Context); err != nil {
+		return nil, err
 	}
 	stage("balance")
 	w := est.Weights(o.Estimand)
@@ -244,6 +257,9 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	estCells := cells
 	if trim {
 		estCells = r.trimmedCells
+	}
+	if err := cancelled(o.Context); err != nil {
+		return nil, err
 	}
 	stage("estimates")
 	es := est.Effects(o.Estimand, estCells...)
@@ -264,6 +280,9 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		}
 		r.Estimates = append(r.Estimates, extra...)
 	}
+	if err := cancelled(o.Context); err != nil {
+		return nil, err
+	}
 	if o.Bootstrap > 0 {
 		stage("bootstrap")
 		ctx := o.Context
@@ -277,12 +296,28 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 				primary = IPWNormalized
 			}
 		}
+		// A failed bootstrap is an optional part: it stays in the report,
+		// marked failed with why (see Bootstrap.Status), and takes nothing else with it.
 		r.Bootstrap = est.Bootstrap(ctx, primary, o.Estimand, BootstrapOptions{Replicates: o.Bootstrap, Seed: o.Seed, Progress: o.Progress})
-		if err := r.Bootstrap.Err(); err != nil {
-			return nil, err
-		}
 	}
 	return r, nil
+}
+
+// cancelled returns the error of a cancelled context (nil for none).
+func cancelled(ctx context.Context) error {
+	if ctx == nil || ctx.Err() == nil {
+		return nil
+	}
+	return fmt.Errorf("report cancelled: %w", ctx.Err())
+}
+
+// noteFailedCells adds to v a note that the positivity cells c failed and
+// were not judged (nothing when c is nil or did not fail).
+func noteFailedCells(v *Verdict, c *Cells) {
+	if c == nil || c.Err() == nil || v == nil {
+		return
+	}
+	v.Notes = append(v.Notes, "positivity cells on "+strings.Join(c.Columns, ", ")+" could not be built ("+c.Err().Error()+"): this verdict does not judge them")
 }
 
 // Err says why the report is unusable (nil, or not built by BuildReport).
@@ -345,7 +380,14 @@ func (r *Report) String() string {
 		fmt.Fprintf(&b, "  %-22s %s %12.4g  SE %10.4g  95%% CI [%.4g, %.4g]  (%s)%s\n", e.Estimator, e.Estimand, e.Value, e.SE, e.CI95.Lo, e.CI95.Hi, e.SEMethod, flag)
 	}
 	if r.Bootstrap != nil {
-		fmt.Fprintf(&b, "  bootstrap: %s\n", strings.TrimSpace(strings.SplitN(r.Bootstrap.String(), "\n", 2)[0]))
+		if st, why := r.Bootstrap.Status(); st == BootstrapFailed {
+			fmt.Fprintf(&b, "  bootstrap: FAILED: %s\n", why)
+		} else {
+			fmt.Fprintf(&b, "  bootstrap: %s\n", strings.TrimSpace(strings.SplitN(r.Bootstrap.String(), "\n", 2)[0]))
+		}
+	}
+	if r.Cells != nil && r.Cells.Err() != nil {
+		fmt.Fprintf(&b, "positivity cells: FAILED: %v (the verdict does not judge them)\n", r.Cells.Err())
 	}
 	fmt.Fprintf(&b, "verdict: %s", strings.ToUpper(r.Verdict.Status))
 	if len(r.Verdict.Reasons) > 0 {

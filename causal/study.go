@@ -44,7 +44,13 @@ func Load(path string) *Study { return LoadProgress(path, nil) }
 // LoadProgress is Load reporting progress (bytes parsed of the file's size)
 // to progress, which may be nil; kernel.Load shows it as a progress bar.
 func LoadProgress(path string, progress func(done, total int)) *Study {
-	f, err := ReadCSVProgress(path, progress)
+	return LoadWith(path, ReadOptions{Progress: progress})
+}
+
+// LoadWith is Load with read options: the delimiter, the field-length
+// limit, columns read as text, progress.
+func LoadWith(path string, o ReadOptions) *Study {
+	f, err := ReadCSVWith(path, o)
 	s := &Study{file: path, err: err}
 	if err == nil {
 		s.src = f
@@ -273,21 +279,21 @@ func (s *Study) resolve() (*Design, error) {
 		return nil, errors.New("no data loaded")
 	}
 	if s.treat == "" {
-		return nil, errors.New("no treatment column: call .Treat(\"column\")")
+		return nil, settingErr("Treat", "column", "no treatment column: name it with ", "")
 	}
 	seen := map[string]string{s.treat: "treatment"}
 	if s.outcome != "" {
 		if r, dup := seen[s.outcome]; dup {
-			return nil, fmt.Errorf("column %q is both the %s and the outcome", s.outcome, r)
+			return nil, fmt.Errorf("column %s is both the %s and the outcome", quoteValue(s.outcome), r)
 		}
 		seen[s.outcome] = "outcome"
 	}
 	for _, c := range s.covariates {
 		if r, dup := seen[c]; dup {
 			if r == "covariate" {
-				return nil, fmt.Errorf("covariate %q is listed twice in Adjust", c)
+				return nil, fmt.Errorf("covariate %s is listed twice among the covariates", quoteValue(c))
 			}
-			return nil, fmt.Errorf("column %q is the %s and cannot also be a covariate", c, r)
+			return nil, fmt.Errorf("column %s is the %s and cannot also be a covariate", quoteValue(c), r)
 		}
 		seen[c] = "covariate"
 	}
@@ -301,7 +307,10 @@ func (s *Study) resolve() (*Design, error) {
 			return nil, err
 		}
 		if ycol.Kind != Numeric {
-			return nil, fmt.Errorf("outcome %q is not numeric (it has text values such as %q): choose a numeric outcome", s.outcome, ycol.Levels[0])
+			if ycol.textAt != "" {
+				return nil, fmt.Errorf("outcome %q is not numeric: %s; fix that field (write an empty field or NA for a missing value), or choose a numeric outcome", s.outcome, ycol.textAt)
+			}
+			return nil, fmt.Errorf("outcome %q is not numeric (it has text values such as %s): choose a numeric outcome", s.outcome, quoteValue(ycol.Levels[0]))
 		}
 	}
 	covs := make([]*Column, len(s.covariates))
@@ -333,8 +342,8 @@ func (s *Study) resolve() (*Design, error) {
 		}
 	}
 	if nInc > 0 && !s.dropIncomp {
-		return nil, fmt.Errorf("missing values in %s: %d row%s incomplete; fill them in, or call .DropIncomplete() to drop those rows (the report then says how many were dropped)",
-			strings.Join(miss, ", "), nInc, plural(nInc, " is", "s are"))
+		return nil, settingErr("DropIncomplete", "", fmt.Sprintf("missing values in %s: %d row%s incomplete; fill them in, or use ",
+			strings.Join(miss, ", "), nInc, plural(nInc, " is", "s are")), " to drop those rows (the report then says how many were dropped)")
 	}
 	rows := make([]int, 0, n-nInc)
 	for i := 0; i < n; i++ {
@@ -377,11 +386,16 @@ func (s *Study) resolve() (*Design, error) {
 
 	// Terms.
 	d.Terms = []TermInfo{{Name: "(intercept)", Binary: false}}
-	type src struct {
-		col   *Column
-		level int32 // -1 for numeric
+	type numTerm struct {
+		col  *Column
+		term int
 	}
-	srcs := []src{{}}
+	type indicator struct {
+		col  *Column
+		term []int32
+	}
+	var numeric []numTerm
+	var indicators []indicator
 	ranges := numericRanges(covs, rows)
 	for ci, c := range covs {
 		if c.Kind == Numeric {
@@ -389,8 +403,8 @@ func (s *Study) resolve() (*Design, error) {
 			if lo == hi {
 				return nil, fmt.Errorf("covariate %q is constant (every used row is %g): it carries no information; remove it from Adjust", c.Name, lo)
 			}
+			numeric = append(numeric, numTerm{col: c, term: len(d.Terms)})
 			d.Terms = append(d.Terms, TermInfo{Name: c.Name, Column: c.Name, Binary: bin})
-			srcs = append(srcs, src{col: c, level: -1})
 			continue
 		}
 		counts := make([]int, len(c.Levels))
@@ -410,29 +424,38 @@ func (s *Study) resolve() (*Design, error) {
 		if used < 2 {
 			return nil, fmt.Errorf("covariate %q has a single level (%q) in the rows used: it carries no information; remove it from Adjust", c.Name, c.Levels[ref])
 		}
+		if err := tooManyLevels(c, used, len(rows)); err != nil {
+			return nil, err
+		}
+		if err := strayText(c, counts, s.asCategory[c.Name]); err != nil {
+			return nil, err
+		}
+		term := make([]int32, len(c.Levels)) // design column of each level, 0 for none
 		for l, k := range counts {
 			if l == ref || k == 0 {
 				continue
 			}
+			term[l] = int32(len(d.Terms))
 			d.Terms = append(d.Terms, TermInfo{Name: c.Name + "=" + c.Levels[l], Column: c.Name, Level: c.Levels[l], Binary: true, RefLevel: c.Levels[ref]})
-			srcs = append(srcs, src{col: c, level: int32(l)})
 		}
+		indicators = append(indicators, indicator{col: c, term: term})
 	}
 	d.P = len(d.Terms)
 	if d.P >= d.N {
 		return nil, fmt.Errorf("the model has %d terms (intercept, covariates and category levels) but only %d rows: drop covariates or merge rare levels", d.P, d.N)
 	}
+	// One write per covariate and row: the work is linear in the levels.
 	d.X = make([]float64, d.N*d.P)
 	parallelChunks(d.N, func(_, lo, hi int) {
 		for k := lo; k < hi; k++ {
 			i := rows[k]
 			row := d.X[k*d.P : (k+1)*d.P]
 			row[0] = 1
-			for j := 1; j < d.P; j++ {
-				sc := srcs[j]
-				if sc.level < 0 {
-					row[j] = sc.col.Num[i]
-				} else if sc.col.Codes[i] == sc.level {
+			for _, nt := range numeric {
+				row[nt.term] = nt.col.Num[i]
+			}
+			for _, ind := range indicators {
+				if j := ind.term[ind.col.Codes[i]]; j > 0 {
 					row[j] = 1
 				}
 			}
@@ -521,9 +544,10 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 		}
 		if len(set) == 2 && treated != "" {
 			// Two numeric codes with the treated one named.
-			var tv float64
-			if _, err := fmt.Sscan(treated, &tv); err != nil || !set[tv] {
-				return nil, fmt.Errorf("treatment %q: treated level %q is not one of its values %s", c.Name, treated, strings.Join(levels, ", "))
+			// The whole text must be a number of the data-file grammar ("1abc" is not 1).
+			tv, kind := parseNumber(treated)
+			if kind != numOK || !set[tv] {
+				return nil, settingErr("TreatedLevel", treated, fmt.Sprintf("treatment %q: ", c.Name), " names a value it does not have; its values are "+strings.Join(levels, ", "))
 			}
 			for k, i := range rows {
 				if c.Num[i] == tv {
@@ -549,7 +573,7 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 				if a == "false" && b == "true" {
 					tl = levels[1]
 				} else {
-					return nil, fmt.Errorf("treatment %q has the labels %q and %q: say which one is treated with .TreatedLevel(%q) (or --treated-level)", c.Name, levels[0], levels[1], levels[1])
+					return nil, settingErr("TreatedLevel", levels[1], fmt.Sprintf("treatment %q has the labels %q and %q: say which one is treated with ", c.Name, levels[0], levels[1]), "")
 				}
 			}
 			code := int32(-1)
@@ -559,7 +583,7 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 				}
 			}
 			if code < 0 || !present[code] {
-				return nil, fmt.Errorf("treatment %q: treated level %q is not one of its values %q, %q", c.Name, tl, levels[0], levels[1])
+				return nil, settingErr("TreatedLevel", tl, fmt.Sprintf("treatment %q: ", c.Name), fmt.Sprintf(" names a value it does not have; its values are %q, %q", levels[0], levels[1]))
 			}
 			for k, i := range rows {
 				if c.Codes[i] == code {
@@ -579,6 +603,50 @@ func treatmentVector(c *Column, treated string, rows []int) ([]float64, error) {
 		}
 		return nil, fmt.Errorf("treatment %q has more than two values (%s): it must be binary; recode it to two levels", c.Name, strings.Join(shown, ", "))
 	default:
-		return nil, fmt.Errorf("treatment %q has the values %s: use 0/1, or name the treated value with .TreatedLevel", c.Name, strings.Join(levels, " and "))
+		return nil, settingErr("TreatedLevel", "", fmt.Sprintf("treatment %q has the values %s: use 0/1, or name the treated value with ", c.Name, strings.Join(levels, " and ")), "")
 	}
+}
+
+// tooManyLevels refuses a categorical covariate with more than MaxLevels
+// levels, or more levels than MaxLevelShare of the rows used: one indicator
+// per level would make the model as large as the data.
+func tooManyLevels(c *Column, levels, rows int) error {
+	if levels <= MaxLevels && float64(levels) <= MaxLevelShare*float64(rows) {
+		return nil
+	}
+	msg := fmt.Sprintf("covariate %q has %d levels in the %d rows used (the limit is %d levels, and at most one level per %g rows): one indicator per level cannot be estimated; group rare levels (for example into \"other\"), use a coarser grouping, or leave it out of the covariates",
+		c.Name, levels, rows, MaxLevels, 1/MaxLevelShare)
+	if c.textAt != "" {
+		nums := 0
+		for _, l := range c.Levels {
+			if _, k := parseNumber(l); k == numOK {
+				nums++
+			}
+		}
+		if 2*nums > len(c.Levels) {
+			msg += fmt.Sprintf("; it is read as text, not numbers, because %s: if it is numeric, fix that field", c.textAt)
+		}
+	}
+	return errors.New(msg)
+}
+
+// strayText refuses a covariate read as text although at least 99% of its
+// rows hold numbers (a typo such as 0x1p3 or 1_000 in a numeric column),
+// unless AsCategory names it.
+func strayText(c *Column, counts []int, asCategory bool) error {
+	if asCategory || c.textAt == "" {
+		return nil
+	}
+	nums, all := 0, 0
+	for l, k := range counts {
+		if _, kind := parseNumber(c.Levels[l]); kind == numOK {
+			nums += k
+		}
+		all += k
+	}
+	if nums == all || float64(nums) < 0.99*float64(all) {
+		return nil
+	}
+	return fmt.Errorf("covariate %q is read as text because %s, though %d of its %d values are numbers: fix that field (an empty field or NA is a missing value), or call .AsCategory(%q) to use its values as categories",
+		c.Name, c.textAt, nums, all, c.Name)
 }

@@ -418,7 +418,7 @@ func (s *Strata) String() string {
 // outcome, the three estimates.
 func (s *Strata) MarshalJSON() ([]byte, error) {
 	if err := s.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	type stratumJSON struct {
 		Lo          Num    `json:"lo"`

@@ -76,7 +76,7 @@ func (sc *Scores) Sweep(est Estimator, target Estimand, alphas ...float64) *Swee
 		return s
 	}
 	if sc.Design.Y == nil {
-		s.err = errors.New("sweep: no outcome: set one with .Outcome(\"column\")")
+		s.err = settingErr("Outcome", "column", "sweep: no outcome: set one with ", "")
 		return s
 	}
 	if len(alphas) == 0 {
@@ -143,7 +143,7 @@ func (s *Sweep) String() string {
 // MarshalJSON is the chart payload: one entry per α.
 func (s *Sweep) MarshalJSON() ([]byte, error) {
 	if err := s.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	type row struct {
 		Alpha          float64  `json:"alpha"`

@@ -385,7 +385,7 @@ func (t *Trimmed) String() string {
 // MarshalJSON is the pipeline view.
 func (t *Trimmed) MarshalJSON() ([]byte, error) {
 	if err := t.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	type arm struct {
 		Treated int `json:"treated"`

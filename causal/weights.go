@@ -66,7 +66,7 @@ func ParseEstimand(s string) (Estimand, error) {
 			return e, nil
 		}
 	}
-	return 0, fmt.Errorf("unknown estimand %q: use ATE, ATT, ATC or ATO", s)
+	return 0, fmt.Errorf("unknown estimand %s: use ATE, ATT, ATC or ATO", quoteValue(s))
 }
 
 func checkEstimand(e Estimand) error {
@@ -440,7 +440,7 @@ func (w *Weights) String() string {
 // weights, so the size stays bounded).
 func (w *Weights) MarshalJSON() ([]byte, error) {
 	if err := w.Err(); err != nil {
-		return json.Marshal(errJSON{err.Error()})
+		return failedJSON(err)
 	}
 	type arm struct {
 		N   int `json:"n"`

@@ -226,7 +226,8 @@ func TestE2ENotebooks(t *testing.T) {
 	if err == nil {
 		t.Errorf("run of failing.ipynb succeeded; want a failure:\n%s", out)
 	}
-	for _, want := range []string{"3 cells failed", "cell 3 (In [2])", "undefined: undefinedThing", "cell 4 (In [3])", "assignment to entry in nil map", "cell 5 (In [4])", "cannot open data.csv"} {
+	for _, want := range []string{"4 cells failed", "cell 3 (In [2])", "undefined: undefinedThing", "cell 4 (In [3])", "assignment to entry in nil map", "cell 5 (In [4])", "cannot open data.csv",
+		"cell 6 (In [5])", "error panel: ", "no-such-data.csv", "6 code cells", "4 failed"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("failing.ipynb: output lacks %q:\n%s", want, out)
 		}

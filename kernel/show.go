@@ -102,10 +102,7 @@ func Show(xs ...any) {
 		b.WriteString(`<div class="cp-output">`)
 		b.WriteString(html)
 		b.WriteString(`</div>`)
-		gonbui.SendData(&protocol.DisplayData{Data: map[protocol.MIMEType]any{
-			protocol.MIMETextHTML:  b.String(),
-			protocol.MIMETextPlain: text,
-		}})
+		gonbui.SendData(displayData(b.String(), text, html))
 		if gonbui.Error() == nil {
 			received := syncWithKernel()
 			if withLibrary {
@@ -131,6 +128,25 @@ func Show(xs ...any) {
 			fmt.Fprintf(os.Stderr, "counterpart: %s=%s: %v\n", HTMLPageEnv, path, err)
 		}
 	}
+}
+
+// ErrorsMetadataKey is the key, in the metadata of a display that shows
+// failed results (error panels), of their messages (a list of strings).
+// `counterpart run` reads it to count the cell as failed.
+const ErrorsMetadataKey = "counterpart/errors"
+
+// displayData is the display message of a Show: page in text/html, text in
+// text/plain, and, when shown (the values' HTML) holds error panels, their
+// messages under ErrorsMetadataKey.
+func displayData(page, text, shown string) *protocol.DisplayData {
+	d := &protocol.DisplayData{Data: map[protocol.MIMEType]any{
+		protocol.MIMETextHTML:  page,
+		protocol.MIMETextPlain: text,
+	}}
+	if msgs := widgets.ErrorPanelMessages(shown); len(msgs) > 0 {
+		d.Metadata = map[string]any{ErrorsMetadataKey: msgs}
+	}
+	return d
 }
 
 // syncWithKernel waits until GoNB has taken the messages sent so far, so that
@@ -233,7 +249,7 @@ func pre(s string) string {
 	return `<pre class="cp-text">` + template.HTMLEscapeString(s) + `</pre>`
 }
 
-// writePage writes the page atomically (temp file, then rename).
+// writePage writes the page atomically (see WriteFileAtomic).
 func writePage(path string, parts []string) error {
 	js, err := EChartsJS()
 	body := parts
@@ -245,11 +261,7 @@ func writePage(path string, parts []string) error {
 	if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
 		return err
 	}
-	tmp := path + ".tmp"
-	if err := os.WriteFile(tmp, []byte(widgets.Page(title, body, js)), 0o644); err != nil {
-		return err
-	}
-	return os.Rename(tmp, path)
+	return WriteFileAtomic(path, []byte(widgets.Page(title, body, js)), 0o644)
 }
 
 // libraryHTML returns the ECharts library as a script element (local true),

@@ -261,6 +261,10 @@ func TestNotebookDisplayContract(t *testing.T) {
 	if !strings.Contains(txt, "[chart] first") || !strings.Contains(txt, "error: column \"x\" missing") || !strings.Contains(txt, "note") {
 		t.Fatalf("text/plain = %q", txt)
 	}
+	// The failed result is listed in the metadata, through GoNB's pipe, for `counterpart run`.
+	if got, _ := msgs[0].Metadata[ErrorsMetadataKey].([]string); len(got) != 1 || got[0] != `column "x" missing` {
+		t.Fatalf("metadata %s = %#v; want the error's message", ErrorsMetadataKey, msgs[0].Metadata[ErrorsMetadataKey])
+	}
 
 	// A second chart display in the same process does not repeat the library.
 	f.reset()
@@ -268,6 +272,9 @@ func TestNotebookDisplayContract(t *testing.T) {
 	msgs = f.displays()
 	if len(msgs) != 1 {
 		t.Fatalf("want 1 display message, got %d", len(msgs))
+	}
+	if _, ok := msgs[0].Metadata[ErrorsMetadataKey]; ok {
+		t.Fatalf("a display without a failed result carries %s", ErrorsMetadataKey)
 	}
 	if h, _ := msgs[0].Data[protocol.MIMETextHTML].(string); strings.Contains(h, `data-cp-echarts`) || !strings.Contains(h, "cp-chart") {
 		t.Fatal("library repeated, or chart missing, in the second display")

@@ -1,7 +1,9 @@
 package widgets
 
 import (
+	"html"
 	"html/template"
+	"regexp"
 	"strings"
 )
 
@@ -55,8 +57,14 @@ func ErrorText(err error) string {
 	return "error: " + ErrorMessage(err) + "\nhint: " + ErrorHint(err)
 }
 
+// ErrorMarker is the attribute that marks an error panel: a result that
+// failed. A finding shown in the same style (a separation panel, a failed
+// optional part of a report) does not carry it. `counterpart run` counts a
+// cell whose output holds a marked panel as failed (see ErrorPanelMessages).
+const ErrorMarker = "data-counterpart-error"
+
 var errorTemplate = template.Must(template.New("error").Parse(
-	`<div class="cp-error" role="alert">` +
+	`<div class="cp-error" role="alert" ` + ErrorMarker + `>` +
 		`<div class="cp-error-title">Error</div>` +
 		`<div class="cp-error-msg" style="white-space:pre-wrap">{{.Message}}</div>` +
 		`<div class="cp-hint">{{.Hint}}</div>` +
@@ -71,7 +79,29 @@ func ErrorPanel(err error) string {
 	}
 	var b strings.Builder
 	if e := errorTemplate.Execute(&b, struct{ Message, Hint string }{ErrorMessage(err), ErrorHint(err)}); e != nil {
-		return `<div class="cp-error" role="alert">` + template.HTMLEscapeString(ErrorMessage(err)) + `</div>`
+		return `<div class="cp-error" role="alert" ` + ErrorMarker + `><div class="cp-error-msg">` + template.HTMLEscapeString(ErrorMessage(err)) + `</div></div>`
 	}
 	return b.String()
+}
+
+// errorPanelMsg finds the message of each marked error panel in a page.
+var errorPanelMsg = regexp.MustCompile(`<div class="cp-error"[^>]*\s` + ErrorMarker + `[^>]*>(?:<div class="cp-error-title">[^<]*</div>)?<div class="cp-error-msg"[^>]*>([^<]*)</div>`)
+
+// ErrorPanelMessages returns the messages (unescaped) of the error panels
+// in html, in order: none when it shows no failed result.
+func ErrorPanelMessages(h string) []string {
+	var out []string
+	for _, m := range errorPanelMsg.FindAllStringSubmatch(h, -1) {
+		out = append(out, html.UnescapeString(m[1]))
+	}
+	return out
+}
+
+// PartFailedPanel shows that an optional part of a larger result (a
+// report's bootstrap) failed, and why, in the error panel's style but
+// without ErrorMarker: the whole was built and the cell did not fail.
+func PartFailedPanel(part string, why string) string {
+	return `<div class="cp-error" role="note"><div class="cp-error-title">` + template.HTMLEscapeString(part) + ` failed</div>` +
+		`<div class="cp-error-msg" style="white-space:pre-wrap">` + template.HTMLEscapeString(why) + `</div>` +
+		`<div class="cp-hint">The rest of the report does not depend on it.</div></div>`
 }

@@ -2,8 +2,11 @@ package widgets
 
 import (
 	"errors"
+	"html/template"
 	"strings"
 	"testing"
+
+	"github.com/counterpartlab/counterpart/causal"
 )
 
 type hinted struct{ msg, hint string }
@@ -44,5 +47,44 @@ func TestErrorPanelNil(t *testing.T) {
 	}
 	if !strings.Contains(ErrorPanel(errors.New("  \n")), "carried no message") {
 		t.Fatal("empty message must be replaced by a readable one")
+	}
+}
+
+// An error panel carries ErrorMarker and its message can be read back (as
+// `counterpart run` does); a failed optional part and a finding in the same
+// style do not carry it.
+func TestErrorPanelMarker(t *testing.T) {
+	msg := "column \"a<b>\" & \x1b[31m missing\nsecond line"
+	h := ErrorPanel(errors.New(msg)) + "<p>between</p>" + ErrorPanel(errors.New("two"))
+	got := ErrorPanelMessages(h)
+	if len(got) != 2 || got[0] != msg || got[1] != "two" {
+		t.Fatalf("messages %q", got)
+	}
+	for name, h := range map[string]string{
+		"part failed": PartFailedPanel("Bootstrap", "0 of 5 replicates succeeded"),
+		"plain":       `<div class="cp-error" role="note"><div class="cp-error-title">Separation</div><div class="cp-error-msg">x</div></div>`,
+		"escaped":     `<pre>` + template.HTMLEscapeString(`<div class="cp-error" `+ErrorMarker+`><div class="cp-error-msg">x</div>`) + `</pre>`,
+	} {
+		if strings.Contains(h, ErrorMarker+">") || len(ErrorPanelMessages(h)) != 0 {
+			t.Errorf("%s: reads as a failed result: %s", name, h)
+		}
+	}
+}
+
+// A report whose bootstrap failed shows the rest and the failed section with
+// why, and is not read as a failed result.
+func TestReportPageShowsFailedBootstrap(t *testing.T) {
+	s := causal.FromColumns([]string{"x", "t", "y"}, map[string][]float64{"x": {1, 2, 3, 4, 5, 6, 7, 8}, "t": {0, 0, 0, 1, 0, 0, 1, 0}, "y": {1, 3, 2, 5, 4, 6, 1, 1}}, nil).
+		Treat("t").Outcome("y").Adjust("x")
+	r, err := causal.BuildReport(s, causal.ReportOptions{Bootstrap: 20, Seed: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	page := ReportPage(r, nil)
+	if !strings.Contains(page, "Bootstrap failed") || !strings.Contains(page, "outcome model for the treated arm") || !strings.Contains(page, "20 replicates, seed 1 (failed)") {
+		t.Errorf("page lacks the failed bootstrap section")
+	}
+	if n := len(ErrorPanelMessages(page)); n != 0 {
+		t.Errorf("page has %d marked error panels; the report was built", n)
 	}
 }

@@ -32,6 +32,9 @@ func ReportPage(r *causal.Report, echartsJS []byte) string {
 	boot := ""
 	if r.Bootstrap != nil {
 		boot = fmt.Sprintf("%d replicates, seed %d", r.Options.Bootstrap, r.Options.Seed)
+		if st, _ := r.Bootstrap.Status(); st != causal.BootstrapOK {
+			boot += " (" + st + ")"
+		}
 	}
 	trim := ""
 	if r.Trimming != nil {
@@ -48,7 +51,9 @@ func ReportPage(r *causal.Report, echartsJS []byte) string {
 		head.WriteString(ErrorPanel(err))
 	}
 	body := []string{head.String(), HTML(r.Verdict), HTML(r.Propensity), HTML(r.Support)}
-	if r.Cells != nil {
+	if r.Cells != nil && r.Cells.Err() != nil {
+		body = append(body, PartFailedPanel("Positivity cells", ErrorMessage(r.Cells.Err())+" (the verdict does not judge them)"))
+	} else if r.Cells != nil {
 		body = append(body, HTML(r.Cells))
 	}
 	body = append(body, HTML(r.Balance))
@@ -57,12 +62,14 @@ func ReportPage(r *causal.Report, echartsJS []byte) string {
 	}
 	body = append(body, HTML(&causal.Estimates{Estimand: r.Options.Estimand, Items: r.Estimates}))
 	if r.Matching != nil {
-		body = append(body, HTML(r.Matching))
+		body = append(body, optionalPart("Matching", r.Matching))
 	}
 	if r.Strata != nil {
-		body = append(body, HTML(r.Strata))
+		body = append(body, optionalPart("Subclassification", r.Strata))
 	}
-	if r.Bootstrap != nil {
+	if st, why := r.Bootstrap.Status(); r.Bootstrap != nil && st == causal.BootstrapFailed {
+		body = append(body, PartFailedPanel("Bootstrap", why))
+	} else if r.Bootstrap != nil {
 		body = append(body, HTML(r.Bootstrap))
 	}
 	var c strings.Builder
@@ -74,4 +81,13 @@ func ReportPage(r *causal.Report, echartsJS []byte) string {
 	}
 	title := "counterpart report: " + roles.Outcome + " by " + roles.Treatment
 	return Page(title, body, echartsJS)
+}
+
+// optionalPart is the view of a part of a report that may fail without
+// taking the report with it: a failed part is shown with PartFailedPanel.
+func optionalPart(title string, x any) string {
+	if err := resultErr(x); err != nil {
+		return PartFailedPanel(title, ErrorMessage(err))
+	}
+	return HTML(x)
 }

@@ -4,11 +4,16 @@ import (
 	"archive/tar"
 	"bytes"
 	"compress/gzip"
+	"context"
 	"encoding/json"
+	"errors"
 	"os"
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"github.com/counterpartlab/counterpart/kernel"
+	"github.com/counterpartlab/counterpart/widgets"
 
 	"golang.org/x/mod/module"
 	modzip "golang.org/x/mod/zip"
@@ -25,11 +30,11 @@ func TestScanNotebookFindsGoNBFailures(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if code != 5 {
-		t.Fatalf("want 5 code cells, got %d", code)
+	if code != 6 {
+		t.Fatalf("want 6 code cells, got %d", code)
 	}
-	if len(errs) != 3 {
-		t.Fatalf("want 3 failed cells, got %d: %v", len(errs), errs)
+	if len(errs) != 4 {
+		t.Fatalf("want 4 failed cells, got %d: %v", len(errs), errs)
 	}
 	want := []struct {
 		cell, in int
@@ -38,6 +43,7 @@ func TestScanNotebookFindsGoNBFailures(t *testing.T) {
 		{3, 2, []string{"Cell[2]: Line 2: undefined: undefinedThing"}},                     // compile error: only GoNB's HTML has the words
 		{4, 3, []string{"panic: assignment to entry in nil map", "[[ Cell [3] Line 3 ]]"}}, // panic: stderr only, no error output
 		{5, 4, []string{"cannot open data.csv: no such file", "exit status 1"}},            // log.Fatal
+		{6, 5, []string{"error panel: ", "no-such-data.csv"}},                              // exit 0, but kernel.Show showed a failed result
 	}
 	for i, w := range want {
 		e := errs[i]
@@ -54,7 +60,7 @@ func TestScanNotebookFindsGoNBFailures(t *testing.T) {
 		}
 	}
 	msg := CellErrors(errs).Error()
-	if !strings.HasPrefix(msg, "3 cells failed:") || !strings.Contains(msg, "cell 4 (In [3]) \"var counts map[string]int\":") {
+	if !strings.HasPrefix(msg, "4 cells failed:") || !strings.Contains(msg, "cell 4 (In [3]) \"var counts map[string]int\":") {
 		t.Fatalf("summary:\n%s", msg)
 	}
 }
@@ -73,6 +79,62 @@ func TestScanNotebookCleanAndStderrNoise(t *testing.T) {
 	}
 	if _, _, err := ScanNotebook([]byte("{")); err == nil {
 		t.Fatal("broken JSON must be an error")
+	}
+}
+
+// A display that shows an error panel fails its cell: by the metadata
+// kernel.Show adds, or by the panel's marker in HTML shown another way; a
+// panel without the marker (a finding, a failed optional part) does not.
+func TestScanNotebookErrorPanels(t *testing.T) {
+	panel := widgets.ErrorPanel(errors.New("column \"dose\" not found\x1b[2J"))
+	cell := func(n int, out map[string]any) map[string]any {
+		return map[string]any{"cell_type": "code", "execution_count": n, "source": "%%\nkernel.Show(x)", "outputs": []any{out}}
+	}
+	nb := map[string]any{"cells": []any{
+		cell(1, map[string]any{"output_type": "display_data", "data": map[string]any{"text/html": "<b>ok</b>"}, "metadata": map[string]any{kernel.ErrorsMetadataKey: []string{"from metadata"}}}),
+		cell(2, map[string]any{"output_type": "display_data", "data": map[string]any{"text/html": []string{"<div>", panel, "</div>"}}}),
+		cell(3, map[string]any{"output_type": "execute_result", "data": map[string]any{"text/html": widgets.PartFailedPanel("Bootstrap", "0 of 9 replicates succeeded")}}),
+		cell(4, map[string]any{"output_type": "display_data", "data": map[string]any{"text/html": "<p>fine</p>"}, "metadata": map[string]any{}}),
+	}}
+	data, _ := json.Marshal(nb)
+	errs, code, err := ScanNotebook(data)
+	if err != nil || code != 4 {
+		t.Fatalf("%v, %d code cells", err, code)
+	}
+	if len(errs) != 2 || errs[0].Cell != 1 || errs[1].Cell != 2 {
+		t.Fatalf("failed cells %+v; want cells 1 and 2", errs)
+	}
+	if errs[0].Message != "error panel: from metadata" {
+		t.Errorf("cell 1: %q", errs[0].Message)
+	}
+	if want := `error panel: column "dose" not found\x1b[2J`; errs[1].Message != want {
+		t.Errorf("cell 2: %q, want %q (unescaped, control characters made visible)", errs[1].Message, want)
+	}
+}
+
+// Outputs on top of the notebook, or on each other, are refused before
+// anything runs.
+func TestRunRefusesOutputOnInput(t *testing.T) {
+	dir := t.TempDir()
+	nb := filepath.Join(dir, "a.ipynb")
+	if err := os.WriteFile(nb, []byte(`{"cells":[]}`), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range []struct {
+		o    RunOptions
+		want string
+	}{
+		{RunOptions{Notebook: nb, HTML: filepath.Join(dir, ".", "a.ipynb")}, "--html"},
+		{RunOptions{Notebook: nb, Executed: nb}, "--executed"},
+		{RunOptions{Notebook: nb, HTML: filepath.Join(dir, "o"), Executed: filepath.Join(dir, "x", "..", "o")}, "--html and --executed are the same file"},
+	} {
+		_, err := Run(context.Background(), c.o)
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%+v: %v; want an error naming %s", c.o, err, c.want)
+		}
+	}
+	if b, _ := os.ReadFile(nb); string(b) != `{"cells":[]}` {
+		t.Errorf("the notebook changed: %s", b)
 	}
 }
 

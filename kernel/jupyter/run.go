@@ -12,6 +12,9 @@ import (
 	"regexp"
 	"strings"
 	"time"
+
+	"github.com/counterpartlab/counterpart/kernel"
+	"github.com/counterpartlab/counterpart/widgets"
 )
 
 // RunOptions configures Run. Zero values choose the defaults.
@@ -82,6 +85,9 @@ func Run(ctx context.Context, o RunOptions) (*RunResult, error) {
 	if !fileExists(nb) {
 		return nil, fmt.Errorf("notebook %s not found", o.Notebook)
 	}
+	if err := checkOutputs(o); err != nil {
+		return nil, err
+	}
 	jupyterCmd, err := findJupyter()
 	if err != nil {
 		return nil, err
@@ -126,22 +132,58 @@ func Run(ctx context.Context, o RunOptions) (*RunResult, error) {
 	res.Cells = codeCells
 	fmt.Fprintf(o.Out, "executed %d code cells in %s, %d failed\n", codeCells, res.Duration.Round(100*time.Millisecond), len(cellErrs))
 
-	if o.Executed != "" {
-		if err := os.MkdirAll(filepath.Dir(o.Executed), 0o755); err != nil {
-			return nil, err
+	// Every output is staged beside its target first and put in place only
+	// when all are ready and the run was not interrupted: earlier files are
+	// replaced whole or not at all.
+	var staged []*kernel.StagedFile
+	defer func() {
+		for _, st := range staged {
+			st.Discard()
 		}
-		if err := os.WriteFile(o.Executed, data, 0o644); err != nil {
+	}()
+	stage := func(flag, path string, data []byte) error {
+		if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
+			return fmt.Errorf("%s %s: %w", flag, path, err)
+		}
+		st, err := kernel.StageFile(path, data, 0o644)
+		if err != nil {
+			return fmt.Errorf("%s %s: %w", flag, path, err)
+		}
+		staged = append(staged, st)
+		return nil
+	}
+	if o.Executed != "" {
+		if err := stage("--executed", o.Executed, data); err != nil {
 			return nil, err
 		}
 	}
+	var notes []string
 	if o.HTML != "" {
-		opts, notes := selfContainedExport(data)
-		out, err := exportHTML(ctx, jupyterCmd, executed, o.HTML, opts)
+		var opts []string
+		opts, notes = selfContainedExport(data)
+		page, err := exportHTML(ctx, jupyterCmd, executed, opts)
 		if err != nil {
 			return nil, err
 		}
-		res.HTML = out
-		fmt.Fprintf(o.Out, "HTML written to %s\n", out)
+		if res.HTML, err = filepath.Abs(o.HTML); err != nil {
+			return nil, err
+		}
+		if err := stage("--html", res.HTML, page); err != nil {
+			return nil, err
+		}
+	}
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
+	for len(staged) > 0 {
+		st := staged[0]
+		if err := st.Commit(); err != nil {
+			return nil, err
+		}
+		staged = staged[1:]
+	}
+	if res.HTML != "" {
+		fmt.Fprintf(o.Out, "HTML written to %s\n", res.HTML)
 		for _, n := range notes {
 			fmt.Fprintf(o.Out, "note: %s\n", n)
 		}
@@ -262,29 +304,33 @@ func textHoldsMath(s string) bool {
 	return dollars >= 2
 }
 
-// exportHTML converts the executed notebook to HTML at out, passing extra
-// options to nbconvert.
-func exportHTML(ctx context.Context, jupyterCmd, executed, out string, extra []string) (string, error) {
-	out, err := filepath.Abs(out)
-	if err != nil {
-		return "", err
-	}
-	dir := filepath.Dir(out)
-	if err := os.MkdirAll(dir, 0o755); err != nil {
-		return "", err
-	}
-	base := strings.TrimSuffix(filepath.Base(out), ".html")
+// exportHTML converts the executed notebook to HTML beside it (in Run's
+// temporary folder), passing extra options to nbconvert, and returns the page.
+func exportHTML(ctx context.Context, jupyterCmd, executed string, extra []string) ([]byte, error) {
+	dir := filepath.Dir(executed)
+	base := strings.TrimSuffix(filepath.Base(executed), filepath.Ext(executed)) + ".export"
 	args := append([]string{"nbconvert", "--to", "html", "--output-dir", dir, "--output", base}, extra...)
-	if _, err := output(ctx, filepath.Dir(executed), nil, jupyterCmd, append(args, executed)...); err != nil {
-		return "", fmt.Errorf("exporting HTML: %w", err)
+	if _, err := output(ctx, dir, nil, jupyterCmd, append(args, executed)...); err != nil {
+		return nil, fmt.Errorf("exporting HTML: %w", err)
 	}
-	written := filepath.Join(dir, base+".html")
-	if written != out {
-		if err := os.Rename(written, out); err != nil {
-			return "", err
+	return os.ReadFile(filepath.Join(dir, base+".html"))
+}
+
+// checkOutputs refuses an output on top of the notebook or of the other
+// output, naming the flags.
+func checkOutputs(o RunOptions) error {
+	outs := []struct{ flag, path string }{{"--html", o.HTML}, {"--executed", o.Executed}}
+	for i, a := range outs {
+		if kernel.SamePath(a.path, o.Notebook) {
+			return fmt.Errorf("%s %s is the notebook itself: choose another path, or the notebook would be overwritten", a.flag, a.path)
+		}
+		for _, b := range outs[i+1:] {
+			if kernel.SamePath(a.path, b.path) {
+				return fmt.Errorf("%s and %s are the same file %s: give each its own path", a.flag, b.flag, a.path)
+			}
 		}
 	}
-	return out, nil
+	return nil
 }
 
 type notebookJSON struct {
@@ -297,6 +343,7 @@ type notebookJSON struct {
 			Name       string                     `json:"name"`
 			Text       json.RawMessage            `json:"text"`
 			Data       map[string]json.RawMessage `json:"data"`
+			Metadata   map[string]json.RawMessage `json:"metadata"`
 			EName      string                     `json:"ename"`
 			EValue     string                     `json:"evalue"`
 			Traceback  []string                   `json:"traceback"`
@@ -338,7 +385,11 @@ var (
 //     "error" output at all, only the program's stderr followed by GoNB's
 //     own stderr line "exit status N".
 //
-// Both count as failures; the message gathers the compiler's lines or the
+// A cell that showed an error panel (a failed result displayed by
+// kernel.Show or a widgets view; see widgets.ErrorMarker) ran to the end but
+// counts as failed too, with the panel's message.
+//
+// All count as failures; the message gathers the compiler's lines or the
 // panic, with the cell and line GoNB attributes them to.
 func ScanNotebook(data []byte) (CellErrors, int, error) {
 	var nb notebookJSON
@@ -361,8 +412,12 @@ func ScanNotebook(data []byte) (CellErrors, int, error) {
 					stderr.WriteString(multiline(out.Text))
 				}
 			case "display_data", "execute_result":
-				if h := multiline(out.Data["text/html"]); strings.Contains(h, "gonb-err-location") {
+				h := multiline(out.Data["text/html"])
+				if strings.Contains(h, "gonb-err-location") {
 					compile = append(compile, gonbCompileErrors(h)...)
+				}
+				for _, m := range shownErrors(out.Metadata, h) {
+					failure = append(failure, "error panel: "+m)
 				}
 			case "error":
 				msg := strings.TrimSpace(ansi.ReplaceAllString(out.EValue, ""))
@@ -395,6 +450,21 @@ func ScanNotebook(data []byte) (CellErrors, int, error) {
 		errs = append(errs, e)
 	}
 	return errs, code, nil
+}
+
+// shownErrors returns the messages of the error panels a display showed (a
+// failed result shown with kernel.Show or a widgets view): those listed in
+// its metadata under kernel.ErrorsMetadataKey, else those found in its HTML
+// by widgets.ErrorMarker. Control characters are kept out of the terminal.
+func shownErrors(meta map[string]json.RawMessage, h string) []string {
+	var msgs []string
+	if raw, ok := meta[kernel.ErrorsMetadataKey]; !ok || json.Unmarshal(raw, &msgs) != nil || len(msgs) == 0 {
+		msgs = widgets.ErrorPanelMessages(h)
+	}
+	for i, m := range msgs {
+		msgs[i] = kernel.TerminalSafe(m)
+	}
+	return msgs
 }
 
 // gonbCompileErrors turns GoNB's HTML compile-error report into lines like

@@ -225,7 +225,7 @@ func warmModules(ctx context.Context, goCmd, proxy, version string, force bool) 
 	if _, err := output(ctx, dir, env, goCmd, "build", "-o", os.DevNull, "."); err != nil {
 		return "", fmt.Errorf("%s: %v", hint, err)
 	}
-	if err := os.WriteFile(marker, []byte(version+"\n"), 0o644); err != nil {
+	if err := writeFileAtomic(marker, []byte(version+"\n")); err != nil {
 		return "", err
 	}
 	return fmt.Sprintf("resolved %s and its module graph into the module cache for offline notebooks", version), nil
@@ -300,7 +300,7 @@ func buildTools(ctx context.Context, goCmd, repo, bin string, force bool) (strin
 			return "", fmt.Errorf("building %s: %w", t.name, err)
 		}
 	}
-	if err := os.WriteFile(stampPath, []byte(stamp.String()), 0o644); err != nil {
+	if err := writeFileAtomic(stampPath, []byte(stamp.String())); err != nil {
 		return "", err
 	}
 	return "built " + strings.Join(names, ", ") + " into " + bin, nil
@@ -482,11 +482,7 @@ func hashFiles(files []modzip.File) (string, error) {
 }
 
 func writeFileAtomic(path string, data []byte) error {
-	tmp := path + ".tmp"
-	if err := os.WriteFile(tmp, data, 0o644); err != nil {
-		return err
-	}
-	return os.Rename(tmp, path)
+	return kernel.WriteFileAtomic(path, data, 0o644)
 }
 
 func sha256File(p string) (string, int64, error) {
@@ -658,7 +654,7 @@ func writeKernelSpec(dir string, spec KernelSpec, force bool) (string, error) {
 	if err := writeFileAtomic(p, data); err != nil {
 		return "", err
 	}
-	if err := os.WriteFile(filepath.Join(dir, "logo-svg.svg"), []byte(logoSVG), 0o644); err != nil {
+	if err := writeFileAtomic(filepath.Join(dir, "logo-svg.svg"), []byte(logoSVG)); err != nil {
 		return "", err
 	}
 	return fmt.Sprintf("installed the kernelspec %q (%s) in %s", filepath.Base(dir), spec.DisplayName, dir), nil

@@ -7,6 +7,8 @@ import (
 	"os"
 	"os/signal"
 	"path/filepath"
+	"sync/atomic"
+	"syscall"
 	"time"
 
 	"github.com/counterpartlab/counterpart/kernel"
@@ -19,9 +21,40 @@ func init() {
 	register(demoCommand())
 }
 
-// signalContext is cancelled by Ctrl-C, so child processes stop with us.
+// caughtSignal is the first SIGINT or SIGTERM a signalContext caught.
+var caughtSignal atomic.Value
+
+// signalContext is cancelled by Ctrl-C (SIGINT) or SIGTERM, so work and
+// child processes stop with us; interruption then gives the exit status.
+// After the first signal, a second one ends the process at once.
 func signalContext() (context.Context, context.CancelFunc) {
-	return signal.NotifyContext(context.Background(), os.Interrupt)
+	ctx, cancel := context.WithCancel(context.Background())
+	ch := make(chan os.Signal, 1)
+	signal.Notify(ch, os.Interrupt, syscall.SIGTERM)
+	go func() {
+		select {
+		case sig := <-ch:
+			caughtSignal.CompareAndSwap(nil, sig)
+			signal.Stop(ch) // the next signal has its default effect
+			cancel()
+		case <-ctx.Done():
+		}
+	}()
+	return ctx, func() { signal.Stop(ch); cancel() }
+}
+
+// interruption is the exit status for a caught signal (130 for SIGINT, 143
+// for SIGTERM: 128 + its number) with what was kept, or nil when no signal came.
+func interruption(what string) error {
+	sig, _ := caughtSignal.Load().(os.Signal)
+	if sig == nil {
+		return nil
+	}
+	code := 130
+	if s, ok := sig.(syscall.Signal); ok {
+		code = 128 + int(s)
+	}
+	return exitCode(code, fmt.Errorf("interrupted (%v): %s", sig, what))
 }
 
 func setupCommand() *command {
@@ -48,6 +81,9 @@ func setupCommand() *command {
 		defer stop()
 		t0 := time.Now()
 		if _, err := jupyter.Setup(ctx, jupyter.SetupOptions{Repo: *repo, KernelName: *name, DataDir: *dataDir, Force: *force}); err != nil {
+			if ierr := interruption("setup stopped; run it again to finish"); ierr != nil {
+				return ierr
+			}
 			return err
 		}
 		fmt.Printf("setup done in %s\n", time.Since(t0).Round(100*time.Millisecond))
@@ -61,14 +97,16 @@ func runCommand() *command {
 		name:    "run",
 		summary: "execute a notebook headless with the counterpart kernel and export it to HTML",
 		usage:   "counterpart run NOTEBOOK [--html OUT] [--kernel NAME] [--timeout SECONDS]",
-		example: "counterpart run notebooks/tour.ipynb --html tour.html",
+		example: "counterpart run notebooks/tour.ipynb --html tour.html\n" +
+			"exit status: 0 every cell ran; 1 a cell failed (an error, a panic, or an error panel it showed), or a usage error;\n" +
+			"130 interrupted by Ctrl-C (143 by SIGTERM). Outputs are replaced whole (temporary file, then rename), and not at all when interrupted.",
 	}
 	c.run = func(args []string) error {
 		fs := newFlags(c)
 		html := fs.String("html", "", "write the executed notebook as a self-contained HTML page to this file")
 		executed := fs.String("executed", "", "also keep the executed notebook (.ipynb) at this path")
 		name := fs.String("kernel", jupyter.DefaultKernelName, "kernelspec to execute with")
-		timeout := fs.Int("timeout", 900, "seconds allowed per cell (the first cell compiles the imports)")
+		timeout := decimalFlag(fs, "timeout", 900, "seconds allowed per cell, 1 to 604800 (the first cell compiles the imports)")
 		pos, err := parse(c, fs, args)
 		if err != nil {
 			return err
@@ -76,13 +114,16 @@ func runCommand() *command {
 		if len(pos) != 1 {
 			return fmt.Errorf("run needs exactly one NOTEBOOK, got %d (see: counterpart run --help)", len(pos))
 		}
-		if *timeout <= 0 {
-			return fmt.Errorf("--timeout must be a positive number of seconds, got %d", *timeout)
+		if *timeout == 0 || *timeout > 604800 {
+			return fmt.Errorf("--timeout %d: use 1 to 604800 seconds (a week)", *timeout)
 		}
 		ctx, stop := signalContext()
 		defer stop()
 		_, err = jupyter.Run(ctx, jupyter.RunOptions{Notebook: pos[0], HTML: *html, Executed: *executed,
 			KernelName: *name, CellTimeout: time.Duration(*timeout) * time.Second})
+		if ierr := interruption("no output written or replaced"); err != nil && ierr != nil {
+			return ierr
+		}
 		return err
 	}
 	return c
@@ -132,9 +173,15 @@ func demoCommand() *command {
 		defer stop()
 		// Setup skips every step that is up to date, so it also serves as the staleness check.
 		if _, err := jupyter.Setup(ctx, jupyter.SetupOptions{Repo: root}); err != nil {
+			if ierr := interruption("setup stopped; run it again to finish"); ierr != nil {
+				return ierr
+			}
 			return fmt.Errorf("setting up the kernel: %w", err)
 		}
 		res, err := jupyter.Run(ctx, jupyter.RunOptions{Notebook: tour, HTML: filepath.Join(dir, "tour.html")})
+		if ierr := interruption("no output written or replaced"); err != nil && ierr != nil {
+			return ierr
+		}
 		var cellErrs jupyter.CellErrors
 		if errors.As(err, &cellErrs) && res != nil && res.HTML != "" {
 			return fmt.Errorf("%w\n(the HTML with the failing cells is at %s)", err, res.HTML)

@@ -8,6 +8,8 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+
+	"github.com/counterpartlab/counterpart/kernel"
 )
 
 func init() { register(handoutCommand()) }
@@ -73,69 +75,20 @@ func writeHandout(in, out string, keepOutputs bool) (handoutStats, error) {
 	if err != nil {
 		return handoutStats{}, fmt.Errorf("%s: %w", in, err)
 	}
-	if err := writeAtomic(out, res); err != nil {
+	if err := kernel.WriteFileAtomic(out, res, 0o644); err != nil {
 		return handoutStats{}, fmt.Errorf("--out %s: %w", out, err)
 	}
 	return st, nil
 }
 
 // sameFile refuses an --out that is the input, by path or as the same file
-// (a link, another spelling of the path).
+// (a link, another spelling of the path), or a folder.
 func sameFile(in, out string) error {
-	ai, err1 := filepath.Abs(in)
-	ao, err2 := filepath.Abs(out)
-	if err1 == nil && err2 == nil && ai == ao {
-		return fmt.Errorf("--out %s is the input notebook; give another file for the student copy", out)
+	if kernel.SamePath(in, out) {
+		return fmt.Errorf("--out %s is the input notebook (or the same file under another name); give another file for the student copy", out)
 	}
-	fo, err := os.Stat(out)
-	if err != nil {
-		return nil // out does not exist yet (or cannot be read; writing will say why)
-	}
-	if fo.IsDir() {
+	if fo, err := os.Stat(out); err == nil && fo.IsDir() {
 		return fmt.Errorf("--out %s is a folder; give a file name such as %s", out, filepath.Join(out, "student.ipynb"))
-	}
-	if fi, err := os.Stat(in); err == nil && os.SameFile(fi, fo) {
-		return fmt.Errorf("--out %s is the input notebook (the same file under another name); give another file for the student copy", out)
-	}
-	return nil
-}
-
-// writeAtomic writes data to a temporary file in path's folder, syncs it
-// and renames it over path, so that path holds either its old content or
-// the new, never a part.
-func writeAtomic(path string, data []byte) (err error) {
-	dir := filepath.Dir(path)
-	f, err := os.CreateTemp(dir, "."+filepath.Base(path)+".*.tmp")
-	if err != nil {
-		return err
-	}
-	tmp := f.Name()
-	defer func() {
-		if err != nil {
-			f.Close()
-			os.Remove(tmp)
-		}
-	}()
-	if _, err = f.Write(data); err != nil {
-		return err
-	}
-	if err = f.Chmod(0o644); err != nil {
-		return err
-	}
-	if err = f.Sync(); err != nil {
-		return err
-	}
-	if err = f.Close(); err != nil {
-		return err
-	}
-	if err = os.Rename(tmp, path); err != nil {
-		return err
-	}
-	// Make the rename itself durable; a folder that cannot be synced (some
-	// file systems) leaves the file written all the same.
-	if d, err := os.Open(dir); err == nil {
-		_ = d.Sync()
-		d.Close()
 	}
 	return nil
 }

@@ -206,7 +206,7 @@ func TestHandoutCommand(t *testing.T) {
 		{[]string{"handout", in, in, "--out", out}, "exactly one NOTEBOOK, got 2"},
 		{[]string{"handout", filepath.Join(dir, "none.ipynb"), "--out", out}, "reading NOTEBOOK"},
 		{[]string{"handout", in, "--out", filepath.Join(dir, "no-such-dir", "s.ipynb")}, "--out " + filepath.Join(dir, "no-such-dir", "s.ipynb")},
-		{[]string{"handout", in, "--out", out, "--keep"}, "flag provided but not defined: -keep"},
+		{[]string{"handout", in, "--out", out, "--keep"}, "flag provided but not defined: --keep"},
 	} {
 		r := runCmd(t, c.args...)
 		if r.code != 1 || !strings.Contains(r.stderr, c.want) {

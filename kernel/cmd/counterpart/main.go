@@ -20,6 +20,8 @@ import (
 	"os"
 	"sort"
 	"strings"
+
+	"github.com/counterpartlab/counterpart/kernel"
 )
 
 // command is one subcommand.
@@ -90,7 +92,9 @@ func parse(c *command, fs *flag.FlagSet, args []string) ([]string, error) {
 				printUsage(os.Stdout, c, fs)
 				return nil, errHelp
 			}
-			return nil, fmt.Errorf("%v (see: counterpart %s --help)", err, c.name)
+			// The flag package writes one dash; usage lines and messages write two.
+			msg := strings.Replace(strings.Replace(err.Error(), "flag -", "flag --", 1), "defined: -", "defined: --", 1)
+			return nil, fmt.Errorf("%s (see: counterpart %s --help)", msg, c.name)
 		}
 		if fs.NArg() == 0 {
 			break
@@ -148,10 +152,10 @@ func runMain(args []string) (code int) {
 	var ee *exitError
 	if errors.As(err, &ee) {
 		if ee.err != nil {
-			fmt.Fprintf(os.Stderr, "counterpart %s: %v\n", c.name, ee.err)
+			fmt.Fprintf(os.Stderr, "counterpart %s: %s\n", c.name, kernel.TerminalSafe(ee.err.Error()))
 		}
 		return ee.code
 	}
-	fmt.Fprintf(os.Stderr, "counterpart %s: %v\n", c.name, err)
+	fmt.Fprintf(os.Stderr, "counterpart %s: %s\n", c.name, kernel.TerminalSafe(err.Error()))
 	return 1
 }

@@ -1,7 +1,6 @@
 package main
 
 import (
-	"encoding/json"
 	"errors"
 	"fmt"
 	"os"
@@ -9,7 +8,6 @@ import (
 
 	"github.com/counterpartlab/counterpart/causal"
 	"github.com/counterpartlab/counterpart/kernel"
-	"github.com/counterpartlab/counterpart/widgets"
 )
 
 func init() { register(reportCommand()) }
@@ -22,7 +20,10 @@ func reportCommand() *command {
 		example: "counterpart report --data testdata/water_audits.csv --treatment audit --treated-level yes \\\n" +
 			"    --outcome litres_per_day --covariates household_size,lot_m2,home_age,last_summer_lpd,pool,district,income_band \\\n" +
 			"    --estimand ATO --json report.json --html report.html --fail-on violated\n" +
-			"exit status: 0 ran (and the gate passed); 1 usage or data error; 3 the --fail-on gate tripped (files are still written)",
+			"exit status: 0 ran (and the gate passed); 1 usage or data error, or an output could not be written; 3 the --fail-on gate tripped (files are still written);\n" +
+			"130 interrupted by Ctrl-C (143 by SIGTERM). Outputs are replaced whole (temporary file, then rename) once all are ready, and not at all when a write\n" +
+			"fails or the run is interrupted; with --partial-on-interrupt, Ctrl-C during --bootstrap writes the report with the replicates done, marked partial.\n" +
+			"A bootstrap that fails is written marked failed (bootstrap.status) and does not stop the report.",
 	}
 	c.run = func(args []string) error {
 		fs := newFlags(c)
@@ -33,14 +34,17 @@ func reportCommand() *command {
 		treatedLevel := fs.String("treated-level", "", "the treatment value that means treated (when it is not 0/1 or true/false)")
 		estimand := fs.String("estimand", "ATE", "target estimand: ATE, ATT or ATO")
 		trim := fs.String("trim", "none", "trimming before estimation: none, a symmetric α such as 0.1 (scores kept in [α, 1−α]), or optimal (Crump et al. 2009)")
-		caliper := fs.Float64("caliper", 0, "caliper of the nearest_neighbour_matching estimate in SDs of the logit score (0: none; 0.2 is Austin 2011's advice)")
-		boot := fs.Int("bootstrap", 0, "bootstrap replicates for the primary estimator (0: none)")
-		seed := fs.Uint64("seed", 1, "seed of the bootstrap")
+		caliper := fs.String("caliper", "0", "caliper of the nearest_neighbour_matching estimate in SDs of the logit score (0: none; 0.2 is Austin 2011's advice)")
+		boot := decimalFlag(fs, "bootstrap", 0, "bootstrap replicates for the primary estimator (0: none; else 2 to 100000)")
+		seed := decimalFlag(fs, "seed", 1, "seed of the bootstrap (a whole number, 0 to 2^64-1)")
 		jsonOut := fs.String("json", "", "write the report JSON to FILE, or - for stdout")
 		htmlOut := fs.String("html", "", "write a self-contained HTML report to FILE")
 		failOn := fs.String("fail-on", "", "exit 3 when the verdict is this bad: violated, or limited (limited or violated); with --trim the verdict on the trimmed units is judged")
 		dropIncomplete := fs.Bool("drop-incomplete", false, "drop rows with a missing value in a role column (counted in the report) instead of stopping")
 		verbose := fs.Bool("verbose", false, "print the time each stage took on standard error")
+		delimiter := fs.String("delimiter", ",", "field separator of --data: one character such as , ; | or the word tab")
+		maxField := fs.Int("max-field", causal.DefaultMaxField, "longest field of --data accepted, in bytes")
+		partial := fs.Bool("partial-on-interrupt", false, "on Ctrl-C during --bootstrap, write the outputs with the replicates done, the bootstrap marked partial (default: write nothing)")
 		pos, err := parse(c, fs, args)
 		if err != nil {
 			return err
@@ -68,70 +72,73 @@ func reportCommand() *command {
 		if gate != "" && gate != causal.Violated && gate != causal.Limited {
 			return fmt.Errorf("--fail-on %q: use violated or limited", *failOn)
 		}
-		if *boot < 0 {
-			return fmt.Errorf("--bootstrap %d: use 0 (none) or a positive number of replicates", *boot)
+		if *boot == 1 || *boot > maxBootstrap {
+			return fmt.Errorf("--bootstrap %d: use 0 (none) or 2 to %d replicates (1000 or more for percentile intervals)", *boot, maxBootstrap)
 		}
-		var covs []string
-		for _, c := range strings.Split(*covariates, ",") {
-			if c = strings.TrimSpace(c); c != "" {
-				covs = append(covs, c)
-			}
+		cal, err := caliperValue(*caliper)
+		if err != nil {
+			return err
+		}
+		covs, err := covariateList(*covariates)
+		if err != nil {
+			return err
 		}
 		fi, err := os.Stat(*data)
 		if err != nil {
 			return fmt.Errorf("--data %s: %v", *data, errors.Unwrap(err))
 		}
 		paceMemory(fi.Size())
-		clock := newStageClock(*verbose)
-		defer clock.finish()
-		clock.start("reading")
-		s := causal.Load(*data).Treat(*treatment).Outcome(*outcome).Adjust(covs...)
-		if *treatedLevel != "" {
-			s = s.TreatedLevel(*treatedLevel)
+		delim, err := causal.ParseDelimiter(*delimiter)
+		if err != nil {
+			return fmt.Errorf("--%v", err)
 		}
-		if *dropIncomplete {
-			s = s.DropIncomplete()
+		if *maxField < 1 {
+			return fmt.Errorf("--max-field %d: use a positive number of bytes (default %d)", *maxField, causal.DefaultMaxField)
+		}
+		if err := checkOutputPaths(*data, *jsonOut, *htmlOut); err != nil {
+			return err
 		}
 		ctx, stop := signalContext()
 		defer stop()
-		if *caliper < 0 {
-			return fmt.Errorf("--caliper %g: use 0 (none) or a positive number of SDs of the logit score, e.g. 0.2", *caliper)
-		}
-		opts := causal.ReportOptions{Estimand: est, Trim: *trim, Caliper: *caliper, Bootstrap: *boot, Seed: *seed, Context: ctx, Stage: clock.start}
+		clock := newStageClock(*verbose)
+		defer clock.finish()
+		opts := causal.ReportOptions{Estimand: est, Trim: *trim, Caliper: cal, Bootstrap: int(*boot), Seed: *seed, Context: ctx, Stage: clock.start}
 		if *boot > 0 {
 			update, finish := kernel.Progress("bootstrap")
 			opts.Progress = update
 			defer finish()
 		}
-		r, err := causal.BuildReport(s, opts)
+		r, err := buildInterruptible(ctx, *partial, func() (*causal.Report, error) {
+			clock.start("reading")
+			s := causal.LoadWith(*data, causal.ReadOptions{Delimiter: delim, MaxField: *maxField}).Treat(*treatment).Outcome(*outcome).Adjust(covs...)
+			if *treatedLevel != "" {
+				s = s.TreatedLevel(*treatedLevel)
+			}
+			if *dropIncomplete {
+				s = s.DropIncomplete()
+			}
+			return causal.BuildReport(s, opts)
+		})
 		if err != nil {
 			return err
 		}
 		clock.start("writing")
-		if *jsonOut != "" {
-			b, err := json.MarshalIndent(r, "", "  ")
-			if err != nil {
-				return fmt.Errorf("encoding the report: %v", err)
-			}
-			b = append(b, '\n')
-			if *jsonOut == "-" {
-				os.Stdout.Write(b)
-			} else if err := os.WriteFile(*jsonOut, b, 0o644); err != nil {
-				return fmt.Errorf("--json: %v", err)
-			}
+		outs, err := reportOutputs(r, *jsonOut, *htmlOut)
+		if err != nil {
+			return err
 		}
-		if *htmlOut != "" {
-			js, jerr := kernel.EChartsJS()
-			if jerr != nil {
-				fmt.Fprintf(os.Stderr, "counterpart report: %v; the HTML shows static pictures only\n", jerr)
-				js = nil
-			}
-			if err := os.WriteFile(*htmlOut, []byte(widgets.ReportPage(r, js)), 0o644); err != nil {
-				return fmt.Errorf("--html: %v", err)
-			}
+		if ctx.Err() != nil && !partialBootstrap(r, *partial) {
+			outs.discard()
+			return interruption("no output written or replaced")
+		}
+		if err := outs.commit(); err != nil {
+			return err
 		}
 		if *jsonOut != "-" {
-			fmt.Print(r.String())
+			fmt.Print(kernel.TerminalSafe(r.String()))
+		}
+		if ctx.Err() != nil {
+			return interruption("the outputs were written with a partial bootstrap (--partial-on-interrupt)")
 		}
 		status := r.Gate().Status
 		if gate == causal.Violated && status == causal.Violated || gate == causal.Limited && (status == causal.Limited || status == causal.Violated) {

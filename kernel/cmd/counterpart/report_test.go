@@ -170,7 +170,7 @@ func TestReportUsageAndDataErrors(t *testing.T) {
 	}{
 		{"unknown column", []string{"--data", nswData, "--treatment", "treat", "--outcome", "re78", "--covariates", "agee,educ"}, []string{`unknown column "agee"`, `did you mean "age"`}},
 		{"missing file", []string{"--data", "/no/such.csv", "--treatment", "t", "--outcome", "y", "--covariates", "x"}, []string{"--data /no/such.csv", "no such file"}},
-		{"non-numeric", []string{"--data", bad, "--treatment", "t", "--outcome", "y", "--covariates", "x"}, []string{`column "x", row 4`, `"four"`}},
+		{"non-numeric", []string{"--data", bad, "--treatment", "t", "--outcome", "y", "--covariates", "x"}, []string{`covariate "x"`, `row 4 holds "four"`}},
 		{"one-level treatment", []string{"--data", one, "--treatment", "t", "--outcome", "y", "--covariates", "x"}, []string{`treatment "t" has a single value`}},
 		{"missing flags", []string{"--data", nswData}, []string{"missing --treatment, --outcome, --covariates"}},
 		{"bad estimand", []string{"--data", nswData, "--treatment", "treat", "--outcome", "re78", "--covariates", "age", "--estimand", "ATX"}, []string{"--estimand", "ATE, ATT or ATO"}},

@@ -6,6 +6,7 @@ import (
 	"os"
 	"runtime/debug"
 	"strings"
+	"sync"
 	"time"
 )
 
@@ -13,6 +14,7 @@ import (
 // the current stage on one line of standard error (cleared at the end), and
 // with --verbose it prints one line with the time of every stage.
 type stageClock struct {
+	mu       sync.Mutex // the stages may run in another goroutine
 	out      io.Writer
 	terminal bool
 	verbose  bool
@@ -32,6 +34,12 @@ func newStageClock(verbose bool) *stageClock {
 // Stage names are the program's own words (no user text reaches the
 // terminal through them).
 func (c *stageClock) start(name string) {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	c.startLocked(name)
+}
+
+func (c *stageClock) startLocked(name string) {
 	now := time.Now()
 	if c.first.IsZero() {
 		c.first = now
@@ -53,7 +61,9 @@ func (c *stageClock) start(name string) {
 // finish ends the last stage, clears the terminal line and, with
 // --verbose, prints the timing line.
 func (c *stageClock) finish() {
-	c.start("")
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	c.startLocked("")
 	if c.terminal {
 		fmt.Fprint(c.out, "\r\033[K")
 	}
