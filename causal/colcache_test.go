@@ -14,7 +14,7 @@ import (
 
 // writeTestCSV writes n rows: numeric x1 (with a missing value), 0/1 t from
 // a logistic model in x1 and x2, categorical g, numeric y, and a column
-// "bad" with a non-numeric entry among numbers (a column issue).
+// "bad" with a non-finite entry among numbers (a column issue).
 func writeTestCSV(t *testing.T, path string, n int, seed uint64) {
 	t.Helper()
 	r := rand.New(rand.NewPCG(seed, 3))
@@ -32,7 +32,7 @@ func writeTestCSV(t *testing.T, path string, n int, seed uint64) {
 		}
 		bad := "1.5"
 		if i == 3 {
-			bad = "oops"
+			bad = "inf"
 		}
 		fmt.Fprintf(&b, "%s,%.4f,%s,%d,%.4f,%s\n", x1s, x2, []string{"north", "south", "east"}[r.IntN(3)], tr, x1+float64(tr), bad)
 	}
@@ -92,7 +92,7 @@ func TestColumnCacheRoundTrip(t *testing.T) {
 	if second.fingerprint != first.fingerprint {
 		t.Errorf("second load fingerprint %q; want %q", second.fingerprint, first.fingerprint)
 	}
-	if _, err := second.Treat("t").Adjust("x1", "bad").Design(); err == nil || !strings.Contains(err.Error(), "bad") {
+	if _, err := second.Treat("t").Adjust("x2", "bad").Design(); err == nil || !strings.Contains(err.Error(), "bad") {
 		t.Errorf("the column issue of \"bad\" was lost through the cache: %v", err)
 	}
 }
