@@ -53,6 +53,7 @@ type colSchema struct {
 	Kind    Kind     `json:"kind"`
 	Missing int      `json:"missing"`
 	Issue   string   `json:"issue,omitempty"`
+	TextAt  string   `json:"text_at,omitempty"`
 	Levels  []string `json:"levels,omitempty"`
 }
 
@@ -119,7 +120,7 @@ func writeColumnCache(dir string, id colHeader, f *Frame) (string, error) {
 	id.Rows = f.rows
 	for _, name := range f.names {
 		c := f.cols[name]
-		s := colSchema{Name: name, Kind: c.Kind, Missing: c.Missing, Levels: c.Levels}
+		s := colSchema{Name: name, Kind: c.Kind, Missing: c.Missing, Levels: c.Levels, TextAt: c.textAt}
 		if c.issue != nil {
 			s.Issue = c.issue.Error()
 		}
@@ -232,7 +233,7 @@ func readColumnCache(dir string, id colHeader) (*Frame, string, error) {
 	f := &Frame{rows: h.Rows, cols: make(map[string]*Column, len(h.Columns)), file: id.Source}
 	buf := make([]byte, 1<<16)
 	for _, s := range h.Columns {
-		c := &Column{Name: s.Name, Kind: s.Kind, Missing: s.Missing, Levels: s.Levels}
+		c := &Column{Name: s.Name, Kind: s.Kind, Missing: s.Missing, Levels: s.Levels, textAt: s.TextAt}
 		if s.Issue != "" {
 			c.issue = errors.New(s.Issue)
 		}

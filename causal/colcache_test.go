@@ -52,6 +52,9 @@ func sameFrame(t *testing.T, what string, got, want *Frame) {
 		if g.Kind != w.Kind || g.Missing != w.Missing || !reflect.DeepEqual(g.Levels, w.Levels) || !reflect.DeepEqual(g.Codes, w.Codes) {
 			t.Fatalf("%s: column %s differs: %+v vs %+v", what, name, g, w)
 		}
+		if g.textAt != w.textAt {
+			t.Fatalf("%s: column %s first non-number %q; want %q", what, name, g.textAt, w.textAt)
+		}
 		if (g.issue == nil) != (w.issue == nil) || g.issue != nil && g.issue.Error() != w.issue.Error() {
 			t.Fatalf("%s: column %s issue %v; want %v", what, name, g.issue, w.issue)
 		}
