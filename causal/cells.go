@@ -17,8 +17,12 @@ type CellOptions struct {
 	// used by its values, like a categorical one.
 	Bins int
 	// Thin flags an arm with fewer than Thin units in a cell (default 5 —
-	// common practice, no source).
+	// common practice, no source). Whether thin cells hold more units than
+	// chance gives is the verdict's sparse_cells rule.
 	Thin int
+	// Alpha is the family-wise chance that the empty-cell screen calls a
+	// cell of a randomised design structural (default 0.01).
+	Alpha float64
 }
 
 func (o CellOptions) withDefaults() CellOptions {
@@ -27,6 +31,9 @@ func (o CellOptions) withDefaults() CellOptions {
 	}
 	if o.Thin <= 0 {
 		o.Thin = 5
+	}
+	if o.Alpha <= 0 || o.Alpha >= 1 || math.IsNaN(o.Alpha) {
+		o.Alpha = 0.01
 	}
 	return o
 }
@@ -41,14 +48,14 @@ type Cell struct {
 	// Thin: an arm has units but fewer than the Thin threshold.
 	Thin bool `json:"thin"`
 	// Chance is, for a cell with an empty arm, the probability that a cell
-	// of this size would lack that arm if every unit had the overall share of
-	// treated units: (1−p)^n for a cell without treated units, p^n for one
-	// without controls (p = treated share). 1 for cells with both arms.
-	// Structural marks an empty arm that chance does not explain: Chance
-	// below 0.05/K for a table of K cells (the Bonferroni bound, Dunn 1961,
-	// so that a table of many small cells from a randomised design raises
-	// no alarm with probability of at least 95%; the screen itself is our
-	// own rule, common practice with no published source).
+	// of this size would lack that arm under random assignment with the
+	// table's arm sizes: the exact hypergeometric C(n − n_a, m) / C(n, m) for
+	// a cell of m of the n units lacking arm a of n_a units, doubled for the
+	// two arms (chanceMissing). 1 for cells with both arms. Structural marks
+	// an empty arm that chance does not explain: Chance below Alpha/K for a
+	// table of K cells (Bonferroni, Dunn 1961, over cells and arms), so a
+	// randomised design raises no alarm in the whole table with probability
+	// at least 1 − Alpha.
 	Chance     float64 `json:"chance"`
 	Structural bool    `json:"structural"`
 }
@@ -72,7 +79,7 @@ type Cells struct {
 	// Totals.
 	Violating  int // cells with an empty arm
 	Structural int // violating cells whose empty arm chance does not explain (Cell.Structural)
-	// ChanceThreshold is the per-cell bound 0.05/K behind Cell.Structural.
+	// ChanceThreshold is the per-cell bound Alpha/K behind Cell.Structural.
 	ChanceThreshold  float64
 	UnitsStructural  int     // units in structural violating cells
 	ThinCells        int     // cells with a thin (but not empty) arm
@@ -411,18 +418,16 @@ func buildCells(d *Design, columns []string, codes [][]int32, cuts []Cut, o Cell
 			c.cellOf[i] = index[k]
 		}
 	}
-	p := float64(d.Treated) / float64(n)
-	c.ChanceThreshold = 0.05 / float64(len(c.Rows))
+	c.ChanceThreshold = o.Alpha / float64(len(c.Rows))
 	for r := range c.Rows {
 		cell := &c.Rows[r]
 		cell.Chance = 1
 		if cell.Treated == 0 || cell.Control == 0 {
-			m := float64(cell.Treated + cell.Control)
-			if cell.Treated == 0 {
-				cell.Chance = math.Pow(1-p, m)
-			} else {
-				cell.Chance = math.Pow(p, m)
+			missing := d.Treated
+			if cell.Control == 0 {
+				missing = d.Control
 			}
+			cell.Chance = chanceMissing(cell.Treated+cell.Control, n, missing)
 			if cell.Chance < c.ChanceThreshold {
 				cell.Structural = true
 				c.Structural++

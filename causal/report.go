@@ -22,12 +22,17 @@ var Cautions = []string{
 
 // ReportOptions choose what a report estimates.
 type ReportOptions struct {
-	// Estimand: ATE (default), ATT or ATO (ATC is accepted too).
+	// Estimand: ATE (default), ATT, ATC or ATO; the verdict's remedies and the gate judge it.
 	Estimand Estimand
 	// Trim: "none" (default), a symmetric α such as "0.1" (scores kept in
 	// [α, 1−α]; Crump, Hotz, Imbens & Mitnik 2009), or "optimal" (their
 	// optimal α).
 	Trim string
+	// Cells are the covariates that define the positivity cells (default:
+	// the categorical and 0/1 covariates, at most four); Bins cuts the
+	// continuous ones into quantile bins (default 5).
+	Cells []string
+	Bins  int
 	// Caliper of the nearest-neighbour matching estimate, in SDs of the
 	// logit score (0: none; AustinCaliper, 0.2, is Austin's 2011 advice).
 	Caliper float64
@@ -71,13 +76,15 @@ type ReportTrim struct {
 // report JSON contract (schema counterpart.report/v1) plus the results they
 // come from, for the HTML and text views.
 type Report struct {
-	Schema     string        `json:"schema"`
-	Data       ReportData    `json:"data"`
-	Roles      Roles         `json:"roles"`
-	Propensity *Scores       `json:"propensity"`
-	Support    *Support      `json:"support"`
-	Cells      *Cells        `json:"cells"`
-	Balance    *BalanceSheet `json:"balance"`
+	Schema     string     `json:"schema"`
+	Data       ReportData `json:"data"`
+	Roles      Roles      `json:"roles"`
+	Propensity *Scores    `json:"propensity"`
+	Support    *Support   `json:"support"`
+	Cells      *Cells     `json:"cells"`
+	// CellsAbsent says why there is no positivity table ("" when there is one).
+	CellsAbsent string        `json:"cells_absent,omitempty"`
+	Balance     *BalanceSheet `json:"balance"`
 	// BalanceWeights names the weights behind smd_weighted.
 	BalanceWeights string      `json:"balance_weights"`
 	Trimming       *ReportTrim `json:"trimming"`
@@ -192,16 +199,27 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	r.Support = sc.Support()
 	var cells []*Cells
 	stage("cells")
-	if cols := discreteCovariates(d); len(cols) > 0 {
+	cellCols := o.Cells
+	copts := CellOptions{Bins: o.Bins}
+	if len(cellCols) == 0 {
+		cellCols = discreteCovariates(d)
+	}
+	if len(cellCols) > 0 {
 		// The cells are an optional part: when they fail they stay in the
-		// report marked failed, and the verdict says it did not judge them.
-		r.Cells = s.Cells(cols...)
-		if r.Cells.Err() == nil {
+		// report marked failed, and the verdict says it did not judge them;
+		// cells the user named must build (the error names the column).
+		r.Cells = s.CellsWith(copts, cellCols...)
+		if err := r.Cells.Err(); err == nil {
 			cells = append(cells, r.Cells)
+		} else if len(o.Cells) > 0 {
+			return nil, fmt.Errorf("cells: %w", err)
 		}
+	} else {
+		r.CellsAbsent = "no categorical or 0/1 covariate to define positivity cells by default: name the cell covariates (--cells a,b; continuous ones are cut into --bins quantile bins)"
 	}
 	stage("verdict")
-	r.Verdict = sc.Verdict(VerdictOptions{}, cells...)
+	vo := VerdictOptions{Target: o.Estimand}
+	r.Verdict = sc.Verdict(vo, cells...)
 	if err := r.Verdict.Err(); err != nil {
 		return nil, err
 	}
@@ -226,15 +244,15 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		est = tr.Scores
 		var tcells []*Cells
 		var c *Cells
-		if cols := discreteCovariates(tr.Design); len(cols) > 0 {
+		if len(cellCols) > 0 {
 			// The positivity cells of the kept units, by the kept design's rows.
-			c = tr.Cells(cols...)
+			c = tr.Scores.CellsWith(copts, cellCols...)
 			if c.Err() == nil {
 				tcells = append(tcells, c)
 			}
 		}
 		r.trimmedCells = tcells
-		r.VerdictTrimmed = est.Verdict(VerdictOptions{}, tcells...)
+		r.VerdictTrimmed = est.Verdict(vo, tcells...)
 		if err := r.VerdictTrimmed.Err(); err != nil {
 			return nil, err
 		}
@@ -331,6 +349,15 @@ func (r *Report) Err() error {
 	return nil
 }
 
+// GateStatus is what a pipeline gate judges: the grade of the report's
+// estimand in Gate's verdict (see Verdict.Grade).
+func (r *Report) GateStatus() VerdictStatus {
+	if r.Err() != nil {
+		return ""
+	}
+	return r.Gate().Grade(r.Options.Estimand)
+}
+
 // Gate is the verdict a pipeline gate should judge: the trimmed units' when
 // the report trims (the population the estimates describe), else the data's.
 func (r *Report) Gate() *Verdict {
@@ -389,13 +416,17 @@ func (r *Report) String() string {
 	if r.Cells != nil && r.Cells.Err() != nil {
 		fmt.Fprintf(&b, "positivity cells: FAILED: %v (the verdict does not judge them)\n", r.Cells.Err())
 	}
-	fmt.Fprintf(&b, "verdict: %s", strings.ToUpper(r.Verdict.Status))
+	fmt.Fprintf(&b, "verdict: %s", strings.ToUpper(string(r.Verdict.Status)))
 	if len(r.Verdict.Reasons) > 0 {
 		fmt.Fprintf(&b, " — %s", strings.Join(r.Verdict.Reasons, "; "))
 	}
-	fmt.Fprintf(&b, "\nsupported estimands: %s\n", strings.Join(r.Verdict.Supported, ", "))
+	fmt.Fprintf(&b, "\nsupported estimands: %s; the %s: %s\n", strings.Join(r.Verdict.Supported, ", "), r.Options.Estimand, statusWords(r.Verdict.StatusOf(r.Options.Estimand)))
 	if v := r.VerdictTrimmed; v != nil {
-		fmt.Fprintf(&b, "verdict on the trimmed units: %s; supported estimands there: %s\n", strings.ToUpper(v.Status), strings.Join(v.Supported, ", "))
+		fmt.Fprintf(&b, "verdict on the trimmed units: %s; supported estimands there: %s; the %s: %s\n", strings.ToUpper(string(v.Status)), strings.Join(v.Supported, ", "),
+			r.Options.Estimand, statusWords(v.StatusOf(r.Options.Estimand)))
+	}
+	if r.CellsAbsent != "" {
+		b.WriteString("cells: none (" + r.CellsAbsent + ")\n")
 	}
 	b.WriteString("caution: " + Cautions[0] + "\n")
 	return b.String()

@@ -84,6 +84,12 @@ type Scores struct {
 	// trimAlpha is the α of the symmetric trimming these scores were
 	// refitted after (0: none); see verdictDefaults.
 	trimAlpha float64
+	// defE are the scores that defined a trimmed population (the original
+	// scores of the kept units): the verdict judges the population by them,
+	// so the refit cannot re-trigger the rule that made it (nil: E).
+	defE []float64
+	// judged caches the verdict's findings (see judgementFor).
+	judged *judgeCache
 }
 
 // Err returns why the scores could not be computed, or nil.

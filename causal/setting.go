@@ -14,7 +14,7 @@ import (
 // with Phrase, so its users read the names they type.
 type SettingError struct {
 	// Setting is the Study method that fixes the problem: "Treat",
-	// "TreatedLevel", "Outcome", "Adjust" or "DropIncomplete".
+	// "TreatedLevel", "Outcome", "Adjust", "DropIncomplete" or "AsCategory".
 	Setting string
 	// Value is the argument suggested for the setting ("" for none, or for
 	// a setting that takes no argument).

@@ -647,6 +647,8 @@ func strayText(c *Column, counts []int, asCategory bool) error {
 	if nums == all || float64(nums) < 0.99*float64(all) {
 		return nil
 	}
-	return fmt.Errorf("covariate %q is read as text because %s, though %d of its %d values are numbers: fix that field (an empty field or NA is a missing value), or call .AsCategory(%q) to use its values as categories",
-		c.Name, c.textAt, nums, all, c.Name)
+	return settingErr("AsCategory", c.Name,
+		fmt.Sprintf("covariate %q is read as text because %s, though %d of its %d values are numbers: fix that field (an empty field or NA is a missing value), or use ",
+			c.Name, c.textAt, nums, all),
+		" to use its values as categories")
 }

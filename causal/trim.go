@@ -263,6 +263,10 @@ func (sc *Scores) Trim(rule TrimRule) *Trimmed {
 	if !math.IsNaN(tr.Alpha) && tr.Alpha > 0 {
 		tr.Scores.trimAlpha = tr.Alpha
 	}
+	tr.Scores.defE = make([]float64, 0, len(rows))
+	for _, k := range rows {
+		tr.Scores.defE = append(tr.Scores.defE, sc.judgedScores()[k])
+	}
 	if err := tr.Scores.Err(); err != nil {
 		tr.err = fmt.Errorf("trim: refitting the propensity model on the %d kept units: %w", sub.N, err)
 		return tr

@@ -1,47 +1,82 @@
 package causal
 
 import (
+	"encoding/json"
 	"errors"
 	"fmt"
 	"math"
+	"sort"
+	"strconv"
 	"strings"
+	"sync"
 )
 
-// Verdict statuses.
+// VerdictStatus is the overall positivity status, derived from the
+// estimands' statuses and the findings.
+type VerdictStatus string
+
+// Overall statuses.
 const (
-	Adequate = "adequate"
-	Limited  = "limited"
-	Violated = "violated"
+	// Adequate: every estimand is supported.
+	Adequate VerdictStatus = "adequate"
+	// Limited: some estimand is not supported, or supported with caution,
+	// without a violation in a covariate region.
+	Limited VerdictStatus = "limited"
+	// Violated: separation, empty cells that chance does not explain, or no
+	// overlap at all.
+	Violated VerdictStatus = "violated"
 )
 
-// VerdictOptions are the thresholds of the verdict. Zero values take the
-// defaults below.
-type VerdictOptions struct {
-	// MaxShareOutside: more than this share of units outside the
-	// common-support band makes support limited. Default 0.05 (common
-	// practice, no source).
-	MaxShareOutside float64
-	// Extreme: scores below Extreme or above 1 − Extreme count as extreme.
-	// Default 0.1, the trimming rule of thumb of Crump, Hotz, Imbens & Mitnik (2009).
-	Extreme float64
-	// MaxShareExtreme: more than this share of units with extreme scores
-	// makes support limited. Default 0.1 (common practice, no source).
-	MaxShareExtreme float64
-}
+// EstimandStatus is the verdict for one estimand.
+type EstimandStatus string
 
-// verdictDefaults fills in the defaults. For scores refitted on the units
-// kept by symmetric trimming at α, the default Extreme is that α: the user
-// has chosen how extreme a score may be, and judging the kept units by a
-// stricter bound would withdraw what the trimming was meant to support.
-func (sc *Scores) verdictDefaults(o VerdictOptions) VerdictOptions {
-	if o.Extreme == 0 && sc.trimAlpha > 0 {
-		o.Extreme = sc.trimAlpha
-	}
-	return o.withDefaults()
+// Estimand statuses.
+const (
+	// Supported: the data identify the estimand and no rule cautions.
+	Supported EstimandStatus = "supported"
+	// SupportedWithCaution: identified, but precision rules fired (extreme
+	// scores, sparse cells or variance inflation beyond chance).
+	SupportedWithCaution EstimandStatus = "supported_with_caution"
+	// NotSupported: data in an arm the estimand needs are missing; an
+	// estimate would extrapolate.
+	NotSupported EstimandStatus = "not_supported"
+)
+
+// VerdictOptions tune the verdict. Zero values take the defaults.
+type VerdictOptions struct {
+	// Target is the estimand the remedies aim at (default ATE).
+	Target Estimand
+	// Alpha is the family-wise error rate of the permutation-calibrated
+	// rules (sparse cells, scores outside the other arm's range, extreme
+	// scores, variance inflation) under random assignment. Default 0.025.
+	// With SeparationAlpha and each table's CellOptions.Alpha (0.01 each by
+	// default) the verdict on a randomised design with one table raises any
+	// alarm with probability at most 0.045 (Bonferroni over the screens).
+	Alpha float64
+	// SeparationAlpha bounds the chance that the separation screen calls a
+	// level of a randomised design separated (default 0.01).
+	SeparationAlpha float64
+	// Extreme: scores below Extreme or above 1 − Extreme count as extreme.
+	// Default 0.1, the trimming rule of thumb of Crump, Hotz, Imbens &
+	// Mitnik (2009); for scores refitted after symmetric trimming at α, α.
+	Extreme float64
+	// MinShare: a permutation-calibrated rule fires only when the units in
+	// excess of chance are at least this share of the arm (and at least one
+	// unit). Default 0.01 (common practice, no source).
+	MinShare float64
+	// MaxInflation: variance inflation (against a randomised design of the
+	// same size) at which precision becomes a caution, when beyond chance.
+	// Default 2, an effective sample size halved (common practice, no source).
+	MaxInflation float64
+	// Permutations of the treatment for the chance calibration (default
+	// 99: the smallest adjusted p-value is then 0.01, below the default
+	// Alpha) and their seed (default 1).
+	Permutations int
+	Seed         uint64
 }
 
 // validate rejects thresholds that cannot mean anything. Zero means the
-// default; to be stricter than a default, give a small positive value.
+// default.
 func (o VerdictOptions) validate() error {
 	check := func(name string, v, hi float64, open bool) error {
 		if math.IsNaN(v) || v < 0 || v > hi || (open && v == hi) {
@@ -53,38 +88,93 @@ func (o VerdictOptions) validate() error {
 		}
 		return nil
 	}
-	if err := check("MaxShareOutside", o.MaxShareOutside, 1, false); err != nil {
-		return err
+	for _, c := range []struct {
+		name string
+		v    float64
+		hi   float64
+		open bool
+	}{{"Alpha", o.Alpha, 1, true}, {"SeparationAlpha", o.SeparationAlpha, 1, true}, {"Extreme", o.Extreme, 0.5, true},
+		{"MinShare", o.MinShare, 1, false}, {"MaxInflation", o.MaxInflation, math.MaxFloat64, false}} {
+		if err := check(c.name, c.v, c.hi, c.open); err != nil {
+			return err
+		}
 	}
-	if err := check("MaxShareExtreme", o.MaxShareExtreme, 1, false); err != nil {
-		return err
+	if o.Permutations < 0 {
+		return fmt.Errorf("verdict options: Permutations = %d must be ≥ 0 (0 means the default)", o.Permutations)
 	}
-	return check("Extreme", o.Extreme, 0.5, true)
+	if o.Target != 0 && !o.Target.valid() {
+		return errors.New("verdict options: Target: use ATE, ATT, ATC or ATO")
+	}
+	return nil
 }
 
-func (o VerdictOptions) withDefaults() VerdictOptions {
-	if o.MaxShareOutside <= 0 {
-		o.MaxShareOutside = 0.05
+// verdictDefaults fills in the defaults. For scores refitted on the units
+// kept by symmetric trimming at α, the default Extreme is that α: the user
+// has chosen how extreme a score may be.
+func (sc *Scores) verdictDefaults(o VerdictOptions) VerdictOptions {
+	if o.Extreme == 0 && sc.trimAlpha > 0 {
+		o.Extreme = sc.trimAlpha
 	}
-	if o.Extreme <= 0 {
+	if o.Target == 0 {
+		o.Target = ATE
+	}
+	if o.Alpha == 0 {
+		o.Alpha = 0.025
+	}
+	if o.SeparationAlpha == 0 {
+		o.SeparationAlpha = 0.01
+	}
+	if o.Extreme == 0 {
 		o.Extreme = 0.1
 	}
-	if o.MaxShareExtreme <= 0 {
-		o.MaxShareExtreme = 0.1
+	if o.MinShare == 0 {
+		o.MinShare = 0.01
+	}
+	if o.MaxInflation == 0 {
+		o.MaxInflation = 2
+	}
+	if o.Permutations == 0 {
+		o.Permutations = 99
+	}
+	if o.Seed == 0 {
+		o.Seed = 1
 	}
 	return o
 }
 
-// Verdict summarises the positivity diagnostics: a status (adequate,
-// limited, violated), the reasons, the estimands the data still support, a
-// recommended remedy with its cost (and alternatives), and what trimming at
-// the Extreme threshold would drop.
+// EstimandVerdict is the verdict for one estimand: its status, the codes
+// of the findings behind it, and its precision figures (Kish effective
+// sample sizes, the largest weight's share of its arm, the variance
+// inflation against a randomised design with the same arm sizes).
+type EstimandVerdict struct {
+	Status             EstimandStatus `json:"status"`
+	Findings           []FindingCode  `json:"findings"`
+	ESSTreated         Num            `json:"ess_treated"`
+	ESSControl         Num            `json:"ess_control"`
+	LargestWeightShare Num            `json:"largest_weight_share"`
+	VarianceInflation  Num            `json:"variance_inflation"`
+}
+
+// Verdict is the positivity judgement: per estimand (ATE, ATT, ATC, ATO) a
+// status with its findings and precision figures; the findings themselves
+// (each rule's code, the estimands it affects, the units it concerns, its
+// numbers); an overall status derived from them; and remedies, each
+// applied and re-judged before it is offered, with its cost.
 type Verdict struct {
-	Status    string   `json:"status"`
-	Reasons   []string `json:"reasons"`
+	Status VerdictStatus `json:"status"`
+	// Target is the estimand the remedies aim at.
+	Target    string                      `json:"target"`
+	Estimands map[string]*EstimandVerdict `json:"estimands"`
+	Findings  []Finding                   `json:"findings"`
+	// Reasons are the texts of the findings that withdraw or caution.
+	Reasons []string `json:"reasons"`
+	// Supported lists the estimands not withdrawn (supported, with or
+	// without caution).
 	Supported []string `json:"supported_estimands"`
 	Remedy    string   `json:"remedy"`
-	// Notes are findings too small to change the status.
+	// Notes are the texts of the informing findings (chance-explained
+	// one-arm levels and cells, tails within chance) and of remedies tried
+	// that would not clear the target.
 	Notes []string `json:"notes"`
 	// Trimming to [Extreme, 1 − Extreme] would drop these units.
 	TrimThreshold float64 `json:"trim_threshold"`
@@ -105,302 +195,208 @@ func (v *Verdict) Err() error {
 	return v.err
 }
 
-// positivity collects the findings behind a verdict: what is violated or
-// limited, and which arms lack comparable units of the other arm somewhere.
-type positivity struct {
-	violated, limited        bool
-	treatedOnly, controlOnly bool // a region holds treated (control) units without the other arm
-	noOverlap                bool // the arms' scores do not overlap at all
-	reasons, notes           []string
-	treatedWhy, controlWhy   []string // why the ATT (ATC) is withdrawn
-	violationWhy             []string // violations (the ATE is withdrawn)
-	// controlsAlone and treatedAlone mark, per design row, the units in a
-	// region without the other arm (scores pinned at 0 or 1 by separation,
-	// outside the common-support band, or in a cell lacking the other arm
-	// that chance does not explain).
-	controlsAlone, treatedAlone []bool
-	sup                         *Support
+// MarshalJSON writes the verdict, or {"status": "failed", "error": "..."}
+// when there is none.
+func (v *Verdict) MarshalJSON() ([]byte, error) {
+	if err := v.Err(); err != nil {
+		return failedJSON(err)
+	}
+	type plain Verdict
+	return json.Marshal((*plain)(v))
 }
 
-// supportBand is the part of Support the verdict needs — score ranges by
-// arm, the common-support band and the units outside it — without the
-// histogram, extreme shares and profile (O(n), no allocation beyond the
-// outside flags).
-func (sc *Scores) supportBand() *Support {
+// StatusOf is the status of the estimand ("" for an estimand the verdict
+// does not judge, or a failed verdict).
+func (v *Verdict) StatusOf(e Estimand) EstimandStatus {
+	if v.Err() != nil || v.Estimands[e.String()] == nil {
+		return ""
+	}
+	return v.Estimands[e.String()].Status
+}
+
+// Grade is the verdict for one estimand on the overall scale, for gates:
+// adequate when it is supported, violated when a violation withdraws it,
+// limited otherwise ("" for a failed verdict).
+func (v *Verdict) Grade(e Estimand) VerdictStatus {
+	switch v.StatusOf(e) {
+	case "":
+		return ""
+	case Supported:
+		return Adequate
+	case NotSupported:
+		for _, f := range v.Findings {
+			if f.Violation && f.Effect == Withdraws && f.affects(e) {
+				return Violated
+			}
+		}
+	}
+	return Limited
+}
+
+// judgement is the outcome of the rules on one set of scores and tables.
+type judgement struct {
+	findings []Finding
+	status   map[Estimand]EstimandStatus
+	prec     map[Estimand]precision
+	o        VerdictOptions
+}
+
+type judgeCache struct {
+	mu sync.Mutex
+	m  map[string]*judgement
+}
+
+var judgeCacheInit sync.Mutex
+
+// judgement runs the rules (cached per options and tables: the effects ask
+// for it once per estimator).
+func (sc *Scores) judgement(o VerdictOptions, cells []*Cells) *judgement {
+	o = sc.verdictDefaults(o)
+	key := o
+	key.Target = 0
+	k := fmt.Sprintf("%v", key)
+	for _, c := range cells {
+		k += fmt.Sprintf("|%p", c)
+	}
+	judgeCacheInit.Lock()
+	if sc.judged == nil {
+		sc.judged = &judgeCache{m: map[string]*judgement{}}
+	}
+	cache := sc.judged
+	judgeCacheInit.Unlock()
+	cache.mu.Lock()
+	defer cache.mu.Unlock()
+	if j := cache.m[k]; j != nil {
+		return j
+	}
+	j := newJudge(sc, o, cells).run()
+	cache.m[k] = j
+	return j
+}
+
+// judgedScores are the scores the verdict judges: for a trimmed population
+// the original scores of the kept units, else the fitted scores.
+func (sc *Scores) judgedScores() []float64 {
+	if sc.defE != nil {
+		return sc.defE
+	}
+	return sc.E
+}
+
+type scoreBand struct{ treated, control Interval }
+
+func (b scoreBand) empty() bool {
+	return math.Max(b.treated.Lo, b.control.Lo) > math.Min(b.treated.Hi, b.control.Hi)
+}
+
+// judge carries what the rules read: the design, the judged scores, the
+// tables, the units not pinned at 0 or 1 by separation (free), the score
+// ranges of the free units by arm, and the permutation null.
+type judge struct {
+	sc        *Scores
+	d         *Design
+	e         []float64
+	cells     []*Cells
+	o         VerdictOptions
+	pinned    []bool
+	free      []int
+	band      scoreBand
+	stats     []permStat
+	statIndex map[string]int
+	perm      *permResult
+	prec      map[Estimand]precision
+}
+
+func newJudge(sc *Scores, o VerdictOptions, cells []*Cells) *judge {
 	d := sc.Design
-	s := &Support{Scores: sc, Treated: d.Treated, Control: d.Control}
-	s.TreatedRange = Interval{math.Inf(1), math.Inf(-1)}
-	s.ControlRange = s.TreatedRange
-	for i, e := range sc.E {
-		r := &s.ControlRange
+	j := &judge{sc: sc, d: d, e: sc.judgedScores(), cells: cells, o: o, pinned: make([]bool, d.N), statIndex: map[string]int{}, prec: map[Estimand]precision{}}
+	j.band = scoreBand{Interval{math.Inf(1), math.Inf(-1)}, Interval{math.Inf(1), math.Inf(-1)}}
+	for i, e := range j.e {
+		if e == 0 || e == 1 {
+			j.pinned[i] = true
+			continue
+		}
+		j.free = append(j.free, i)
+		r := &j.band.control
 		if d.T[i] == 1 {
-			r = &s.TreatedRange
+			r = &j.band.treated
 		}
 		r.Lo, r.Hi = math.Min(r.Lo, e), math.Max(r.Hi, e)
 	}
-	s.Band = Interval{math.Max(s.TreatedRange.Lo, s.ControlRange.Lo), math.Min(s.TreatedRange.Hi, s.ControlRange.Hi)}
-	s.Outside = make([]bool, d.N)
-	for i, e := range sc.E {
-		if e < s.Band.Lo || e > s.Band.Hi || s.Band.Lo > s.Band.Hi {
-			s.Outside[i] = true
-			if d.T[i] == 1 {
-				s.OutsideTreated++
-			} else {
-				s.OutsideControl++
-			}
-		}
-	}
-	return s
+	return j
 }
 
-func (sc *Scores) positivity(o VerdictOptions, cells []*Cells) *positivity {
-	o = sc.verdictDefaults(o)
-	pf := &positivity{reasons: []string{}, notes: []string{}}
-	sup := sc.supportBand()
-	pf.sup = sup
-	d := sc.Design
-	pf.controlsAlone = make([]bool, d.N)
-	pf.treatedAlone = make([]bool, d.N)
-	for i, e := range sc.E {
-		if d.T[i] == 0 && (e == 0 || sup.Outside[i]) {
-			pf.controlsAlone[i] = true
-		}
-		if d.T[i] == 1 && (e == 1 || sup.Outside[i]) {
-			pf.treatedAlone[i] = true
-		}
-	}
-	for _, f := range sc.Separation {
-		pf.violated = true
-		msg := "separation: " + f.Message
-		pf.reasons = append(pf.reasons, msg)
-		pf.violationWhy = append(pf.violationWhy, msg)
-		switch f.Arm {
-		case "treated":
-			pf.treatedOnly = true
-			pf.treatedWhy = append(pf.treatedWhy, msg)
-		case "control":
-			pf.controlOnly = true
-			pf.controlWhy = append(pf.controlWhy, msg)
-		default:
-			pf.treatedOnly, pf.controlOnly = true, true
-			pf.treatedWhy = append(pf.treatedWhy, msg)
-			pf.controlWhy = append(pf.controlWhy, msg)
-		}
-	}
-	if sup.Band.Lo > sup.Band.Hi {
-		msg := "no common support: the score ranges of the arms do not overlap"
-		pf.violated, pf.noOverlap = true, true
-		pf.treatedOnly, pf.controlOnly = true, true
-		pf.reasons = append(pf.reasons, msg)
-		pf.violationWhy = append(pf.violationWhy, msg)
-		pf.treatedWhy = append(pf.treatedWhy, msg)
-		pf.controlWhy = append(pf.controlWhy, msg)
-	}
-	for _, c := range cells {
-		if c.Structural > 0 {
-			pf.violated = true
-			var t1, c0 int
-			for _, r := range c.Rows {
-				if r.Structural {
-					if r.Treated > 0 {
-						pf.treatedOnly = true
-						t1 += r.Treated
-					} else {
-						pf.controlOnly = true
-						c0 += r.Control
-					}
-				}
-			}
-			for i := 0; i < d.N && i < len(c.cellOf); i++ {
-				r := c.Rows[c.cellOf[i]]
-				if r.Structural {
-					if d.T[i] == 1 {
-						pf.treatedAlone[i] = true
-					} else {
-						pf.controlsAlone[i] = true
-					}
-				}
-			}
-			cols := strings.Join(c.Columns, " × ")
-			msg := fmt.Sprintf("positivity cells (%s): %d of %d cells have an empty arm that chance does not explain, holding %d units (%.1f%%); %d cells with an empty arm in all: %d treated without controls, %d controls without treated units",
-				cols, c.Structural, len(c.Rows), c.UnitsStructural, 100*float64(c.UnitsStructural)/float64(c.N), c.Violating, c.TreatedViolating, c.ControlViolating)
-			pf.reasons = append(pf.reasons, msg)
-			pf.violationWhy = append(pf.violationWhy, msg)
-			if t1 > 0 {
-				pf.treatedWhy = append(pf.treatedWhy, fmt.Sprintf("positivity cells (%s): %d treated units are in cells without controls", cols, t1))
-			}
-			if c0 > 0 {
-				pf.controlWhy = append(pf.controlWhy, fmt.Sprintf("positivity cells (%s): %d controls are in cells without treated units", cols, c0))
-			}
-		}
-		// Per arm: units in cells where the other arm is thin (or missing
-		// by what may be chance) have almost no comparable units there. More
-		// than MaxShareOutside of an arm in such cells withdraws the estimand
-		// that targets that arm (ATT for the treated, ATC for the controls).
-		{
-			cols := strings.Join(c.Columns, " × ")
-			var tThin, cThin int
-			for _, r := range c.Rows {
-				if r.Structural {
-					continue // reported above
-				}
-				if r.Treated > 0 && r.Control < c.Options.Thin {
-					tThin += r.Treated
-				}
-				if r.Control > 0 && r.Treated < c.Options.Thin {
-					cThin += r.Control
-				}
-			}
-			// mark sets mask for the units of arm t in the cells that pass in.
-			mark := func(mask []bool, t float64, in func(r Cell) bool) {
-				for i := 0; i < d.N && i < len(c.cellOf); i++ {
-					if d.T[i] == t && in(c.Rows[c.cellOf[i]]) {
-						mask[i] = true
-					}
-				}
-			}
-			if share := float64(tThin) / float64(d.Treated); share > o.MaxShareOutside {
-				mark(pf.treatedAlone, 1, func(r Cell) bool { return !r.Structural && r.Control < c.Options.Thin })
-				pf.withdraw(true, fmt.Sprintf("positivity cells (%s): %d treated units (%.1f%% of the treated) are in cells with fewer than %d controls: their comparisons rest on a handful of controls (threshold %.0f%% of the arm)",
-					cols, tThin, 100*share, c.Options.Thin, 100*o.MaxShareOutside))
-			}
-			if share := float64(cThin) / float64(d.Control); share > o.MaxShareOutside {
-				mark(pf.controlsAlone, 0, func(r Cell) bool { return !r.Structural && r.Treated < c.Options.Thin })
-				pf.withdraw(false, fmt.Sprintf("positivity cells (%s): %d controls (%.1f%% of the controls) are in cells with fewer than %d treated units: their comparisons rest on a handful of treated units (threshold %.0f%% of the arm)",
-					cols, cThin, 100*share, c.Options.Thin, 100*o.MaxShareOutside))
-			}
-		}
-		// Thin cells and small cells lacking an arm by what may be chance:
-		// limited when they hold more than MaxShareOutside of the units,
-		// otherwise a note.
-		sparse, sparseCells := 0, 0
-		for _, r := range c.Rows {
-			if r.Thin || (r.Empty && !r.Structural) {
-				sparse += r.Treated + r.Control
-				sparseCells++
-			}
-		}
-		if sparseCells > 0 {
-			share := float64(sparse) / float64(c.N)
-			msg := fmt.Sprintf("positivity cells (%s): %d sparse cells (an arm with fewer than %d units, or missing in a cell small enough for chance) hold %d units (%.1f%%)",
-				strings.Join(c.Columns, " × "), sparseCells, c.Options.Thin, sparse, 100*share)
-			if share > o.MaxShareOutside {
-				pf.limited = true
-				pf.reasons = append(pf.reasons, msg)
-			} else {
-				pf.notes = append(pf.notes, msg)
-			}
-		}
-	}
-	if share := sup.ShareOutside(); share > o.MaxShareOutside {
-		pf.limited = true
-		pf.reasons = append(pf.reasons, fmt.Sprintf("%.1f%% of units lie outside the common-support band [%.3f, %.3f] (threshold %.0f%%)", 100*share, sup.Band.Lo, sup.Band.Hi, 100*o.MaxShareOutside))
-	}
-	// Treated units scored above every control (or controls below every
-	// treated unit) have no comparable units in the other arm; a handful is
-	// expected by chance at the tails, so only a share above MaxShareOutside
-	// of the arm withdraws the ATT (or ATC).
-	if !pf.noOverlap && (sup.TreatedRange.Hi > sup.ControlRange.Hi || sup.TreatedRange.Lo < sup.ControlRange.Lo) {
-		if share := float64(sup.OutsideTreated) / float64(sup.Treated); share > o.MaxShareOutside {
-			pf.treatedOnly, pf.limited = true, true
-			msg := fmt.Sprintf("%.1f%% of the treated units (%d) have scores outside the controls' range [%.3f, %.3f]: no comparable controls (threshold %.0f%% of the arm)",
-				100*share, sup.OutsideTreated, sup.ControlRange.Lo, sup.ControlRange.Hi, 100*o.MaxShareOutside)
-			pf.treatedWhy = append(pf.treatedWhy, msg)
-			if !pf.violated {
-				pf.reasons = append(pf.reasons, msg)
-			}
-		}
-	}
-	if !pf.noOverlap && (sup.ControlRange.Lo < sup.TreatedRange.Lo || sup.ControlRange.Hi > sup.TreatedRange.Hi) {
-		if share := float64(sup.OutsideControl) / float64(sup.Control); share > o.MaxShareOutside {
-			pf.controlOnly, pf.limited = true, true
-			msg := fmt.Sprintf("%.1f%% of the controls (%d) have scores outside the treated units' range [%.3f, %.3f]: no comparable treated units (threshold %.0f%% of the arm)",
-				100*share, sup.OutsideControl, sup.TreatedRange.Lo, sup.TreatedRange.Hi, 100*o.MaxShareOutside)
-			pf.controlWhy = append(pf.controlWhy, msg)
-			if !pf.violated {
-				pf.reasons = append(pf.reasons, msg)
-			}
-		}
-	}
-	var ext, tHigh, cLow int
-	for i, e := range sc.E {
-		if e < o.Extreme || e > 1-o.Extreme {
-			ext++
-		}
-		if d.T[i] == 1 && e > 1-o.Extreme {
-			tHigh++
-		}
-		if d.T[i] == 0 && e < o.Extreme {
-			cLow++
-		}
-	}
-	// Per arm: treated units with scores above 1 − Extreme have few
-	// comparable controls, and those controls carry ATT weights e/(1 − e)
-	// above (1 − Extreme)/Extreme; likewise controls below Extreme for the
-	// ATC. More than MaxShareExtreme of an arm there withdraws that estimand.
-	if share := float64(tHigh) / float64(d.Treated); share > o.MaxShareExtreme && !pf.noOverlap {
-		for i, e := range sc.E {
-			if d.T[i] == 1 && e > 1-o.Extreme {
-				pf.treatedAlone[i] = true
-			}
-		}
-		pf.withdraw(true, fmt.Sprintf("%.1f%% of the treated units (%d) have scores above %.2f: few comparable controls, each carrying an ATT weight above %.0f (threshold %.0f%% of the arm)",
-			100*share, tHigh, 1-o.Extreme, (1-o.Extreme)/o.Extreme, 100*o.MaxShareExtreme))
-	}
-	if share := float64(cLow) / float64(d.Control); share > o.MaxShareExtreme && !pf.noOverlap {
-		for i, e := range sc.E {
-			if d.T[i] == 0 && e < o.Extreme {
-				pf.controlsAlone[i] = true
-			}
-		}
-		pf.withdraw(false, fmt.Sprintf("%.1f%% of the controls (%d) have scores below %.2f: few comparable treated units, each carrying an ATC weight above %.0f (threshold %.0f%% of the arm)",
-			100*share, cLow, o.Extreme, (1-o.Extreme)/o.Extreme, 100*o.MaxShareExtreme))
-	}
-	if share := float64(ext) / float64(d.N); share > o.MaxShareExtreme {
-		pf.limited = true
-		pf.reasons = append(pf.reasons, fmt.Sprintf("%.1f%% of units have scores below %.2f or above %.2f (threshold %.0f%%)", 100*share, o.Extreme, 1-o.Extreme, 100*o.MaxShareExtreme))
-	}
-	return pf
+func (j *judge) addStat(name string, fn func(t, e []float64, sum *scoreSummary) float64) {
+	j.statIndex[name] = len(j.stats)
+	j.stats = append(j.stats, permStat{name, fn})
 }
 
-// withdraw records a limitation that withdraws the estimand targeting the
-// treated arm (ATT) or the control arm (ATC), with its reason.
-func (pf *positivity) withdraw(treatedArm bool, msg string) {
-	pf.limited = true
-	if treatedArm {
-		pf.treatedOnly = true
-		pf.treatedWhy = append(pf.treatedWhy, msg)
-	} else {
-		pf.controlOnly = true
-		pf.controlWhy = append(pf.controlWhy, msg)
-	}
-	pf.reasons = append(pf.reasons, msg)
+// beyond reports whether permutation statistic k is beyond chance
+// (family-wise adjusted p ≤ Alpha) and material (its excess over the mean
+// under random assignment is at least MinShare of an arm of armN units and
+// at least one unit).
+func (j *judge) beyond(k, armN int) bool {
+	excess := j.perm.observed[k] - j.perm.mean[k]
+	return j.perm.adjP[k] <= j.o.Alpha && excess >= math.Max(1, j.o.MinShare*float64(armN))
 }
 
-// supports reports whether the findings leave the estimand supported, and
-// why not. The ATE needs both arms everywhere (so it also needs what the ATT
-// and ATC need); the ATO needs some overlap.
-func (pf *positivity) supports(target Estimand) (bool, string) {
-	switch target {
-	case ATE:
-		if pf.violated || pf.treatedOnly || pf.controlOnly {
-			why := append(append(append([]string{}, pf.violationWhy...), pf.treatedWhy...), pf.controlWhy...)
-			return false, strings.Join(dedupe(why), "; ")
-		}
-	case ATT:
-		if pf.treatedOnly {
-			return false, strings.Join(dedupe(pf.treatedWhy), "; ")
-		}
-	case ATC:
-		if pf.controlOnly {
-			return false, strings.Join(dedupe(pf.controlWhy), "; ")
-		}
-	case ATO:
-		if pf.noOverlap {
-			return false, "the arms' scores do not overlap at all: there is no overlap population"
+func (j *judge) run() *judgement {
+	for _, r := range verdictRules {
+		if r.stats != nil {
+			r.stats(j)
 		}
 	}
-	return true, ""
+	eFree := make([]float64, len(j.free))
+	for r, i := range j.free {
+		eFree[r] = j.e[i]
+	}
+	j.perm = permutationNull(j.d, j.free, eFree, j.stats, j.o.Permutations, j.o.Seed, j.o.Extreme)
+	out := &judgement{status: map[Estimand]EstimandStatus{}, o: j.o}
+	for _, r := range verdictRules {
+		out.findings = append(out.findings, r.find(j)...)
+	}
+	out.prec = j.prec
+	for _, e := range []Estimand{ATE, ATT, ATC, ATO} {
+		st := Supported
+		for _, f := range out.findings {
+			if !f.affects(e) {
+				continue
+			}
+			if f.Effect == Withdraws {
+				st = NotSupported
+			} else if f.Effect == Caution && st == Supported {
+				st = SupportedWithCaution
+			}
+		}
+		out.status[e] = st
+	}
+	return out
+}
+
+// why is the reason the estimand is withdrawn ("" when it is not).
+func (jd *judgement) why(e Estimand) string {
+	var why []string
+	for _, f := range jd.findings {
+		if f.Effect == Withdraws && f.affects(e) {
+			why = append(why, f.Text)
+		}
+	}
+	return strings.Join(dedupe(why), "; ")
+}
+
+func (jd *judgement) codes(e Estimand, effects ...FindingEffect) []string {
+	var out []string
+	for _, f := range jd.findings {
+		if !f.affects(e) {
+			continue
+		}
+		for _, ef := range effects {
+			if f.Effect == ef {
+				out = append(out, string(f.Code))
+			}
+		}
+	}
+	return dedupe(out)
 }
 
 func dedupe(s []string) []string {
@@ -418,27 +414,29 @@ func dedupe(s []string) []string {
 // unsupported is the reason the data do not support the estimand ("" when
 // they do), by the default verdict rules.
 func (sc *Scores) unsupported(target Estimand, cells []*Cells) string {
-	ok, why := sc.positivity(VerdictOptions{}, cells).supports(target)
-	if ok {
+	jd := sc.judgement(VerdictOptions{}, cells)
+	if jd.status[target] != NotSupported {
 		return ""
 	}
-	return why
+	return jd.why(target)
 }
 
-// Remedy is one way to analyse data with positivity problems, with what it
-// costs: the units it drops, who they are, and the effective sample sizes
-// left.
+// Remedy is one way to analyse data with positivity problems, applied and
+// re-judged before it is offered, with what it costs: the units it drops,
+// who they are, and the effective sample sizes left.
 type Remedy struct {
 	// Action is "none", "target_att", "target_atc", "overlap_weights" or "trim".
 	Action   string `json:"action"`
 	Estimand string `json:"estimand"`
-	Text     string `json:"text"`
+	// Status is the estimand's status after the remedy, by the same rules.
+	Status EstimandStatus `json:"status"`
+	Text   string         `json:"text"`
 	// Units removed from the analysis, per arm (trim only; a change of
 	// target keeps every unit but describes fewer: see Unrepresented).
 	DropsTreated int `json:"drops_treated"`
 	DropsControl int `json:"drops_control"`
-	// Unrepresented counts units in regions the new target population
-	// leaves out (target_att: controls without comparable treated units).
+	// Unrepresented counts units the new target population leaves out that
+	// the findings against the old target concern.
 	Unrepresented int `json:"unrepresented"`
 	// Who compares the dropped or unrepresented units with the rest on the
 	// design terms (up to 5, largest |SMD| first); WhoText says it in words.
@@ -458,26 +456,22 @@ func whoText(rows []ProfileRow, what string) string {
 		return ""
 	}
 	var parts []string
-	for k, r := range rows {
-		if k == 3 || math.Abs(r.SMD) < 0.1 {
+	for _, r := range rows {
+		if len(parts) == 3 {
 			break
 		}
-		parts = append(parts, fmt.Sprintf("%s (mean %s vs %s, SMD %+.2f)", r.Term, fmtG(r.MeanOutside), fmtG(r.MeanInside), r.SMD))
+		switch {
+		case math.Abs(r.SMD) >= 0.1:
+			parts = append(parts, fmt.Sprintf("%s (mean %s vs %s, SMD %+.2f)", r.Term, fmtG(r.MeanOutside), fmtG(r.MeanInside), r.SMD))
+		case r.SMD == 0 && r.MeanOutside != r.MeanInside:
+			// No SMD (a term constant in both groups): the means say it.
+			parts = append(parts, fmt.Sprintf("%s (mean %s vs %s)", r.Term, fmtG(r.MeanOutside), fmtG(r.MeanInside)))
+		}
 	}
 	if len(parts) == 0 {
 		return what + " resemble the other units on every term (all |SMD| < 0.1)"
 	}
 	return what + " differ from the other units most in " + strings.Join(parts, ", ")
-}
-
-func countMask(m []bool) int {
-	k := 0
-	for _, v := range m {
-		if v {
-			k++
-		}
-	}
-	return k
 }
 
 func cleanProfile(rows []ProfileRow) []ProfileRow {
@@ -490,128 +484,185 @@ func cleanProfile(rows []ProfileRow) []ProfileRow {
 	return out
 }
 
-// remedies lists the remedies for the findings, the recommended one first.
-func (sc *Scores) remedies(pf *positivity, o VerdictOptions, adequate bool) []Remedy {
+func statusWords(s EstimandStatus) string { return strings.ReplaceAll(string(s), "_", " ") }
+
+// remedies applies each candidate remedy, re-judges the result with the
+// same rules and lists those that leave the target (or the estimand they
+// change to) supported, the recommended one first; notes say which were
+// tried and did not clear. A population just trimmed is not trimmed again.
+func (sc *Scores) remedies(jd *judgement, cells []*Cells) (out []Remedy, notes []string) {
 	d := sc.Design
-	if adequate {
-		r := Remedy{Action: "none", Estimand: "ATE", Text: "none needed for positivity; the ATE is estimable on these covariates (check balance after weighting)",
-			ESSTreated: Num(math.NaN()), ESSControl: Num(math.NaN()), Who: []ProfileRow{}}
-		if w := sc.Weights(ATE); w.Err() == nil {
-			r.ESSTreated, r.ESSControl = Num(w.ESSTreated), Num(w.ESSControl)
+	o := jd.o
+	target := o.Target
+	nan := Num(math.NaN())
+	ess := func(e Estimand, p map[Estimand]precision) (Num, Num) {
+		if pr, ok := p[e]; ok {
+			return Num(pr.essT), Num(pr.essC)
 		}
-		return []Remedy{r}
+		return nan, nan
 	}
-	var out []Remedy
-	ateOK, _ := pf.supports(ATE)
-	for _, t := range []Estimand{ATT, ATC} {
-		ok, _ := pf.supports(t)
-		if ateOK || !ok {
+	ts := jd.status[target]
+	if ts == Supported {
+		r := Remedy{Action: "none", Estimand: target.String(), Status: ts, Who: []ProfileRow{},
+			Text: fmt.Sprintf("none needed for positivity: the %s is supported on these covariates (check balance after weighting)", target)}
+		r.ESSTreated, r.ESSControl = ess(target, jd.prec)
+		return []Remedy{r}, nil
+	}
+	if ts == SupportedWithCaution {
+		r := Remedy{Action: "none", Estimand: target.String(), Status: ts, Who: []ProfileRow{},
+			Text: fmt.Sprintf("no remedy needed for identification: the %s is supported with caution (%s); its estimates rest on few comparable units or large weights", target, strings.Join(jd.codes(target, Caution), ", "))}
+		r.ESSTreated, r.ESSControl = ess(target, jd.prec)
+		out = append(out, r)
+	}
+	// The units the findings against the target concern.
+	concern := make([]bool, d.N)
+	for _, f := range jd.findings {
+		if f.Effect != Informs && f.affects(target) && f.mask != nil {
+			for i, in := range f.mask {
+				concern[i] = concern[i] || in
+			}
+		}
+	}
+	for _, e := range []Estimand{ATT, ATC, ATO} {
+		if e == target || jd.status[e] == NotSupported || (ts == SupportedWithCaution && jd.status[e] != Supported) {
 			continue
 		}
-		// For the ATT: every treated unit has comparable controls; the
-		// controls in regions without treated units are left out.
-		mask, target, arm, other := pf.controlsAlone, "treated unit", "controls", "treated units"
-		action := "target_att"
-		if t == ATC {
-			mask, target, arm, other, action = pf.treatedAlone, "control", "treated units", "controls", "target_atc"
-		}
-		k := countMask(mask)
-		r := Remedy{Action: action, Estimand: t.String(), Unrepresented: k, Who: []ProfileRow{},
-			ESSTreated: Num(math.NaN()), ESSControl: Num(math.NaN())}
-		r.Text = fmt.Sprintf("estimate the %s instead of the ATE: every %s has comparable %s; the %d %s in regions without %s are not described by it (the ATE would extrapolate there)",
-			t, target, arm, k, arm, other)
-		if k > 0 && k < d.N {
-			r.Who = cleanProfile(profile(d, mask))
-			r.WhoText = whoText(r.Who, fmt.Sprintf("the %d %s left out", k, arm))
-		}
-		if w := sc.Weights(t); w.Err() == nil {
-			r.ESSTreated, r.ESSControl = Num(w.ESSTreated), Num(w.ESSControl)
+		r := Remedy{Estimand: e.String(), Status: jd.status[e], Who: []ProfileRow{}}
+		r.ESSTreated, r.ESSControl = ess(e, jd.prec)
+		switch e {
+		case ATT, ATC:
+			r.Action = "target_" + strings.ToLower(e.String())
+			left, leftArm := 0.0, "controls"
+			if e == ATC {
+				left, leftArm = 1, "treated units"
+			}
+			mask := make([]bool, d.N)
+			for i := range mask {
+				mask[i] = concern[i] && d.T[i] == left
+			}
+			r.Unrepresented = countMask(mask)
+			desc := map[Estimand]string{ATT: "the treated units", ATC: "the controls"}[e]
+			r.Text = fmt.Sprintf("estimate the %s instead of the %s: re-judged by the same rules it is %s; it describes %s only", e, target, statusWords(r.Status), desc)
+			if r.Unrepresented > 0 {
+				r.Text += fmt.Sprintf(", and leaves out the %d %s that the findings against the %s concern (%s)", r.Unrepresented, leftArm, target, strings.Join(jd.codes(target, Withdraws, Caution), ", "))
+				if r.Unrepresented < d.N {
+					r.Who = cleanProfile(profile(d, mask))
+					r.WhoText = whoText(r.Who, fmt.Sprintf("the %d %s left out", r.Unrepresented, leftArm))
+				}
+			}
+		case ATO:
+			r.Action = "overlap_weights"
+			r.Text = fmt.Sprintf("estimate the ATO with overlap weights (1 − e for treated, e for controls; Li, Morgan & Zaslavsky 2018): no unit is dropped, units without comparable units in the other arm get weights near 0, and the estimand becomes the overlap population; re-judged it is %s (effective sample sizes: %.1f treated, %.1f control)",
+				statusWords(r.Status), float64(r.ESSTreated), float64(r.ESSControl))
 		}
 		out = append(out, r)
 	}
-	if ok, _ := pf.supports(ATO); ok {
-		r := Remedy{Action: "overlap_weights", Estimand: "ATO", Who: []ProfileRow{}, ESSTreated: Num(math.NaN()), ESSControl: Num(math.NaN())}
-		r.Text = "estimate the ATO with overlap weights (1 − e for treated, e for controls; Li, Morgan & Zaslavsky 2018): no unit is dropped, units without comparable units in the other arm get weights near 0, and the estimand becomes the overlap population"
-		if w := sc.Weights(ATO); w.Err() == nil {
-			r.ESSTreated, r.ESSControl = Num(w.ESSTreated), Num(w.ESSControl)
-			r.Text += fmt.Sprintf(" (effective sample sizes: %.1f treated, %.1f control)", w.ESSTreated, w.ESSControl)
+	if sc.defE == nil && sc.trimAlpha == 0 {
+		if r, note := sc.trimRemedy(jd, cells); r != nil {
+			out = append(out, *r)
+		} else if note != "" {
+			notes = append(notes, note)
 		}
-		out = append(out, r)
 	}
-	// Trimming: the optimal α of Crump et al. (2009) when it trims, else the
-	// rule of thumb α = Extreme.
+	if len(out) == 0 {
+		out = append(out, Remedy{Action: "none", Estimand: "", Who: []ProfileRow{}, ESSTreated: nan, ESSControl: nan,
+			Text: "no remedy tried here leaves an estimand supported on these covariates: a comparison needs units that could have been in either arm"})
+	}
+	// A remedy that reaches "supported" goes before one with caution.
+	sort.SliceStable(out, func(a, b int) bool {
+		if out[a].Action == "none" || out[b].Action == "none" {
+			return out[a].Action == "none" && out[b].Action != "none"
+		}
+		return out[a].Status == Supported && out[b].Status != Supported
+	})
+	return out, notes
+}
+
+// trimRemedy applies trimming (the optimal α of Crump et al. 2009 when it
+// trims, else α = Extreme), rebuilds the tables on the kept units, judges
+// them by the defining scores with the same rules, and offers the trim only
+// when the target is then not withdrawn.
+func (sc *Scores) trimRemedy(jd *judgement, cells []*Cells) (*Remedy, string) {
+	o := jd.o
+	target := o.Target
 	alpha, _ := crumpAlpha(sc.E)
+	rule := CrumpOptimal()
 	how := fmt.Sprintf("the optimal α = %.3f of Crump, Hotz, Imbens & Mitnik (2009)", alpha)
 	if alpha == 0 || alpha >= 0.5 {
 		alpha = o.Extreme
+		rule = Symmetric(alpha)
 		how = fmt.Sprintf("α = %.2f (rule of thumb of Crump et al. 2009)", alpha)
 	}
-	drop := make([]bool, d.N)
-	var dt, dc int
-	for i, e := range sc.E {
-		if e < alpha || e > 1-alpha {
-			drop[i] = true
-			if d.T[i] == 1 {
-				dt++
-			} else {
-				dc++
-			}
+	tr := sc.Trim(rule)
+	if tr.Err() != nil || tr.DroppedTreated+tr.DroppedControl == 0 {
+		return nil, ""
+	}
+	var tcells []*Cells
+	for _, c := range cells {
+		tc := cellsForDesignWith(sc.Design.study, tr.Design, c.Columns, c.Options)
+		if tc.Err() != nil {
+			return nil, ""
 		}
+		tcells = append(tcells, tc)
 	}
-	if dt+dc > 0 && dt < d.Treated && dc < d.Control {
-		keep := Interval{alpha, 1 - alpha}
-		r := Remedy{Action: "trim", Estimand: "ATE", DropsTreated: dt, DropsControl: dc, Alpha: Num(alpha), Keep: &keep,
-			Who: cleanProfile(profile(d, drop)), ESSTreated: Num(math.NaN()), ESSControl: Num(math.NaN())}
-		r.Text = fmt.Sprintf("trim to scores in [%.3f, %.3f] by %s and estimate the ATE of the units kept: drops %d treated and %d controls; the estimand becomes the trimmed population",
-			alpha, 1-alpha, how, dt, dc)
-		r.WhoText = whoText(r.Who, fmt.Sprintf("the %d units dropped", dt+dc))
-		var s1, q1, s0, q0 float64
-		for i, e := range sc.E {
-			if drop[i] {
-				continue
-			}
-			w := rawWeight(ATE, d.T[i], e)
-			if d.T[i] == 1 {
-				s1, q1 = s1+w, q1+w*w
-			} else {
-				s0, q0 = s0+w, q0+w*w
-			}
-		}
-		r.ESSTreated, r.ESSControl = Num(kish(s1, q1)), Num(kish(s0, q0))
-		out = append(out, r)
+	to := o
+	to.Extreme = 0 // the trimmed scores' own default (α)
+	tj := tr.Scores.judgement(to, tcells)
+	st := tj.status[target]
+	if st == NotSupported || (jd.status[target] == SupportedWithCaution && st != Supported) {
+		return nil, fmt.Sprintf("trimming to scores in [%.3f, %.3f] by %s was tried: re-judged on the %d kept units the %s would still be %s (%s)",
+			tr.Keep.Lo, tr.Keep.Hi, how, tr.KeptTreated+tr.KeptControl, target, statusWords(st), strings.Join(tj.codes(target, Withdraws, Caution), ", "))
 	}
-	if len(out) == 0 {
-		out = append(out, Remedy{Action: "none", Estimand: "", Who: []ProfileRow{}, ESSTreated: Num(math.NaN()), ESSControl: Num(math.NaN()),
-			Text: "no estimand is supported by these data on these covariates: the arms do not overlap; a comparison needs units that could have been in either arm"})
+	keep := tr.Keep
+	r := &Remedy{Action: "trim", Estimand: target.String(), Status: st, DropsTreated: tr.DroppedTreated, DropsControl: tr.DroppedControl,
+		Alpha: Num(tr.Alpha), Keep: &keep, Who: cleanProfile(tr.Profile)}
+	r.Text = fmt.Sprintf("trim to scores in [%.3f, %.3f] by %s and estimate the %s of the units kept: drops %d treated and %d controls; re-judged on the kept units by the same rules the %s is %s there; the estimand becomes the trimmed population",
+		keep.Lo, keep.Hi, how, target, tr.DroppedTreated, tr.DroppedControl, target, statusWords(st))
+	r.WhoText = whoText(r.Who, fmt.Sprintf("the %d units dropped", tr.DroppedTreated+tr.DroppedControl))
+	if pr, ok := tj.prec[target]; ok {
+		r.ESSTreated, r.ESSControl = Num(pr.essT), Num(pr.essC)
+	} else {
+		r.ESSTreated, r.ESSControl = Num(math.NaN()), Num(math.NaN())
 	}
-	return out
+	return r, ""
 }
 
-// Verdict judges positivity from the scores and any positivity tables given.
-// Rules (each threshold in VerdictOptions, with its source):
-//   - violated: separation (treatment deterministic for a covariate level or
-//     range), a cell with an empty arm that chance does not explain
-//     (Cell.Structural: Bonferroni-bounded chance screen), or no common-support band at all;
-//   - limited: a share of units outside the band above MaxShareOutside, a
-//     share of extreme scores above MaxShareExtreme, sparse cells (thin,
-//     or lacking an arm by what may be chance) holding more than
-//     MaxShareOutside of the units (fewer: a note), or more than
-//     MaxShareOutside of an arm scored outside the other arm's range;
-//   - adequate otherwise.
+func countMask(m []bool) int {
+	k := 0
+	for _, v := range m {
+		if v {
+			k++
+		}
+	}
+	return k
+}
+
+// Verdict judges positivity from the scores and any positivity tables
+// given. Each rule (verdictRules) returns findings; every rule that counts
+// units compares the count with what random assignment with the same arm
+// sizes would give:
+//   - separation on a covariate level and cells lacking an arm: exact
+//     hypergeometric chance that a group of that size lacks the arm (chanceMissing),
+//     Bonferroni over the groups tested; beyond chance a violation that
+//     withdraws the estimands needing the missing arm, else a note;
+//   - scores outside the other arm's range, extreme scores, sparse cells and
+//     the variance inflation of each estimand's weights: permutation of the
+//     treatment with the propensity refitted (permutationNull), family-wise
+//     over these statistics; beyond chance (and by at least MinShare of the
+//     arm) scores outside the other arm's range withdraw the estimands that
+//     need comparable units there, the others caution;
+//   - no overlap at all withdraws every estimand.
 //
-// Supported estimands: the ATT when every treated region has controls (no
-// treated-only cell, level or range, and at most MaxShareOutside of the
-// treated scored outside the controls' range); the ATC symmetrically; the
-// ATE only without violations and when both the ATT and the ATC are
-// supported; the ATO (overlap weights, Li, Morgan & Zaslavsky 2018) always,
-// unless the arms' scores do not overlap at all.
+// Identification decides the status of an estimand (not_supported when data
+// in an arm it needs are missing); precision (effective sample sizes,
+// largest weight share, variance inflation) is reported for each estimand
+// and cautions only. The overall status is violated with a violation,
+// limited when an estimand is not supported or supported with caution,
+// adequate otherwise.
 //
-// Remedies lists what to do, the recommended one first (also in Remedy),
-// each with its cost: a change of target (the ATT or ATC, when the ATE is
-// not supported but one of them is) with the units it no longer describes;
-// overlap weights with the effective sample sizes; trimming at the optimal
-// α of Crump et al. (2009) with the units it drops per arm and how they
-// differ from the units kept.
+// Remedies are applied and re-judged by the same rules before they are
+// offered (see remedies); for scores refitted after trimming the verdict
+// judges the kept units by the scores that defined them.
 func (sc *Scores) Verdict(o VerdictOptions, cells ...*Cells) *Verdict {
 	if err := sc.Err(); err != nil {
 		return &Verdict{err: err}
@@ -628,10 +679,13 @@ func (sc *Scores) Verdict(o VerdictOptions, cells ...*Cells) *Verdict {
 		return &Verdict{err: err}
 	}
 	o = sc.verdictDefaults(o)
-	pf := sc.positivity(o, cells)
-	v := &Verdict{Options: o, TrimThreshold: o.Extreme, Reasons: pf.reasons, Notes: pf.notes, Supported: []string{}}
+	jd := sc.judgement(o, cells)
+	jd2 := *jd
+	jd2.o = o // the same findings, this verdict's target
+	v := &Verdict{Options: o, Target: o.Target.String(), TrimThreshold: o.Extreme, Findings: jd.findings, Reasons: []string{}, Notes: []string{},
+		Supported: []string{}, Estimands: map[string]*EstimandVerdict{}}
 	d := sc.Design
-	for i, e := range sc.E {
+	for i, e := range sc.judgedScores() {
 		if e < o.Extreme || e > 1-o.Extreme {
 			if d.T[i] == 1 {
 				v.TrimTreated++
@@ -640,20 +694,38 @@ func (sc *Scores) Verdict(o VerdictOptions, cells ...*Cells) *Verdict {
 			}
 		}
 	}
-	switch {
-	case pf.violated:
-		v.Status = Violated
-	case pf.limited:
-		v.Status = Limited
-	default:
-		v.Status = Adequate
-	}
-	for _, t := range []Estimand{ATE, ATT, ATC, ATO} {
-		if ok, _ := pf.supports(t); ok {
-			v.Supported = append(v.Supported, t.String())
+	violated := false
+	for _, f := range jd.findings {
+		violated = violated || f.Violation
+		switch {
+		case f.Effect != Informs:
+			v.Reasons = append(v.Reasons, f.Text)
+		case f.Code != FindingPrecision:
+			v.Notes = append(v.Notes, f.Text)
 		}
 	}
-	v.Remedies = sc.remedies(pf, o, v.Status == Adequate)
+	v.Status = Adequate
+	for _, e := range []Estimand{ATE, ATT, ATC, ATO} {
+		ev := &EstimandVerdict{Status: jd.status[e], Findings: []FindingCode{}}
+		for _, c := range jd.codes(e, Withdraws, Caution, Informs) {
+			ev.Findings = append(ev.Findings, FindingCode(c))
+		}
+		pr := jd.prec[e]
+		ev.ESSTreated, ev.ESSControl, ev.LargestWeightShare, ev.VarianceInflation = Num(pr.essT), Num(pr.essC), Num(pr.largest), Num(pr.vif)
+		v.Estimands[e.String()] = ev
+		if ev.Status != NotSupported {
+			v.Supported = append(v.Supported, e.String())
+		}
+		if ev.Status != Supported {
+			v.Status = Limited
+		}
+	}
+	if violated {
+		v.Status = Violated
+	}
+	var notes []string
+	v.Remedies, notes = sc.remedies(&jd2, cells)
+	v.Notes = append(v.Notes, notes...)
 	v.Remedy = v.Remedies[0].Text
 	return v
 }
@@ -664,7 +736,25 @@ func (v *Verdict) String() string {
 		return "verdict: " + err.Error()
 	}
 	var b strings.Builder
-	fmt.Fprintf(&b, "Positivity verdict: %s\n", strings.ToUpper(v.Status))
+	fmt.Fprintf(&b, "Positivity verdict: %s\n", strings.ToUpper(string(v.Status)))
+	for _, e := range []string{"ATE", "ATT", "ATC", "ATO"} {
+		ev := v.Estimands[e]
+		if ev == nil {
+			continue
+		}
+		var codes []string
+		for _, c := range ev.Findings {
+			if c != FindingPrecision {
+				codes = append(codes, string(c))
+			}
+		}
+		why := ""
+		if len(codes) > 0 {
+			why = " (" + strings.Join(codes, ", ") + ")"
+		}
+		fmt.Fprintf(&b, "  %-4s %-23s ESS %s treated / %s control, largest weight %s of its arm, variance ×%s%s\n", e, statusWords(ev.Status),
+			fmtFix(float64(ev.ESSTreated), 1), fmtFix(float64(ev.ESSControl), 1), fmtPct(float64(ev.LargestWeightShare)), fmtFix(float64(ev.VarianceInflation), 2), why)
+	}
 	for _, r := range v.Reasons {
 		fmt.Fprintf(&b, "  - %s\n", r)
 	}
@@ -687,6 +777,20 @@ func (v *Verdict) String() string {
 	}
 	fmt.Fprintf(&b, "  These diagnostics cannot verify unconfoundedness; estimates depend on the covariates measured.\n")
 	return b.String()
+}
+
+func fmtFix(v float64, digits int) string {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return "—"
+	}
+	return strconv.FormatFloat(v, 'f', digits, 64)
+}
+
+func fmtPct(v float64) string {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return "—"
+	}
+	return fmt.Sprintf("%.1f%%", 100*v)
 }
 
 // String is the terminal view of the propensity model.
@@ -722,4 +826,35 @@ func (sc *Scores) String() string {
 	}
 	_ = math.Abs
 	return b.String()
+}
+
+// supportBand is the part of Support the verdict needs — score ranges by
+// arm, the common-support band and the units outside it — without the
+// histogram, extreme shares and profile (O(n), no allocation beyond the
+// outside flags).
+func (sc *Scores) supportBand() *Support {
+	d := sc.Design
+	s := &Support{Scores: sc, Treated: d.Treated, Control: d.Control}
+	s.TreatedRange = Interval{math.Inf(1), math.Inf(-1)}
+	s.ControlRange = s.TreatedRange
+	for i, e := range sc.E {
+		r := &s.ControlRange
+		if d.T[i] == 1 {
+			r = &s.TreatedRange
+		}
+		r.Lo, r.Hi = math.Min(r.Lo, e), math.Max(r.Hi, e)
+	}
+	s.Band = Interval{math.Max(s.TreatedRange.Lo, s.ControlRange.Lo), math.Min(s.TreatedRange.Hi, s.ControlRange.Hi)}
+	s.Outside = make([]bool, d.N)
+	for i, e := range sc.E {
+		if e < s.Band.Lo || e > s.Band.Hi || s.Band.Lo > s.Band.Hi {
+			s.Outside[i] = true
+			if d.T[i] == 1 {
+				s.OutsideTreated++
+			} else {
+				s.OutsideControl++
+			}
+		}
+	}
+	return s
 }

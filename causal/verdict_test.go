@@ -56,21 +56,23 @@ func TestNoFalseAlarmOnRandomisedManyCells(t *testing.T) {
 
 func TestVerdictOptionsValidated(t *testing.T) {
 	sc := nswStudy().Propensity()
-	for _, o := range []VerdictOptions{{Extreme: 0.7}, {Extreme: 0.5}, {MaxShareOutside: -1}, {MaxShareExtreme: 2}} {
+	for _, o := range []VerdictOptions{{Extreme: 0.7}, {Extreme: 0.5}, {MinShare: -1}, {Alpha: 2}} {
 		if v := sc.Verdict(o); v.Err() == nil || !strings.Contains(v.Err().Error(), "outside") {
 			t.Errorf("%+v accepted: %v", o, v.Err())
 		}
 	}
-	if v := sc.Verdict(VerdictOptions{Extreme: 0.2, MaxShareOutside: 0.01}); v.Err() != nil {
+	if v := sc.Verdict(VerdictOptions{Extreme: 0.2, MinShare: 0.05}); v.Err() != nil {
 		t.Error(v.Err())
 	}
 }
 
 func ExampleVerdictOptions() {
 	sc := nswStudy().Propensity()
-	strict := sc.Verdict(VerdictOptions{Extreme: 0.25, MaxShareExtreme: 0.05})
-	fmt.Println(strict.Status)
-	// Output: limited
+	// A stricter extreme bound is still compared with what random assignment
+	// gives: the NSW experiment stays adequate.
+	strict := sc.Verdict(VerdictOptions{Extreme: 0.25})
+	fmt.Println(strict.Status, strict.StatusOf(ATT))
+	// Output: adequate supported
 }
 
 // Cells built on the whole study cannot judge scores refitted on trimmed

@@ -486,12 +486,25 @@ type verdictView struct {
 	StatusClass string
 	Border      string
 	Headline    string
+	Estimands   []verdictEstimandRow
 	Reasons     []string
+	Notes       []string
 	Supported   []string
 	Unsupported []string
-	Remedy      string
+	Remedies    []verdictRemedyRow
 	Trim        string
 	Cautions    template.HTML
+}
+
+// verdictEstimandRow is one estimand's line of the panel, from the
+// verdict's EstimandVerdict.
+type verdictEstimandRow struct {
+	Estimand, Status, Colour, Findings, ESS, Largest, Inflation string
+}
+
+// verdictRemedyRow is one remedy: the recommended one first.
+type verdictRemedyRow struct {
+	Label, Text, Who string
 }
 
 var verdictTemplate = template.Must(template.New("verdict").Parse(
@@ -499,19 +512,35 @@ var verdictTemplate = template.Must(template.New("verdict").Parse(
 		`font-family:system-ui,-apple-system,'Segoe UI',Roboto,Arial,sans-serif;color:` + ColorInk + `;font-size:0.9rem;">` +
 		`<div style="font-weight:650;font-size:1rem;margin-bottom:0.3em;">Positivity verdict <span class="cp-badge {{.StatusClass}}">{{.Status}}</span></div>` +
 		`<p style="margin:0.2em 0 0.5em 0;">{{.Headline}}</p>` +
+		`<table style="border-collapse:collapse;margin:0.2em 0 0.5em 0;font-size:0.85rem;"><thead><tr>` +
+		`<th style="text-align:left;padding:0.1em 0.6em 0.1em 0;">estimand</th><th style="text-align:left;padding:0.1em 0.6em;">status</th><th style="text-align:left;padding:0.1em 0.6em;">findings</th>` +
+		`<th style="text-align:right;padding:0.1em 0.6em;" title="Kish (1965) effective sample size, treated / control">ESS</th>` +
+		`<th style="text-align:right;padding:0.1em 0.6em;">largest weight</th>` +
+		`<th style="text-align:right;padding:0.1em 0.6em;" title="variance against a randomised design of the same size">variance ×</th></tr></thead><tbody>` +
+		`{{range .Estimands}}<tr><td style="padding:0.1em 0.6em 0.1em 0;font-weight:600;">{{.Estimand}}</td>` +
+		`<td style="padding:0.1em 0.6em;"><span class="cp-badge" style="background:{{.Colour}};">{{.Status}}</span></td>` +
+		`<td style="padding:0.1em 0.6em;color:` + ColorMuted + `;">{{.Findings}}</td><td class="cp-num" style="padding:0.1em 0.6em;">{{.ESS}}</td>` +
+		`<td class="cp-num" style="padding:0.1em 0.6em;">{{.Largest}}</td><td class="cp-num" style="padding:0.1em 0.6em;">{{.Inflation}}</td></tr>{{end}}</tbody></table>` +
 		`{{if .Reasons}}<div style="font-weight:600;">Why</div><ul style="margin:0.1em 0 0.5em 1.1em;padding:0;">{{range .Reasons}}<li>{{.}}</li>{{end}}</ul>{{end}}` +
+		`{{if .Notes}}<div style="font-weight:600;">Notes</div><ul style="margin:0.1em 0 0.5em 1.1em;padding:0;color:` + ColorMuted + `;">{{range .Notes}}<li>{{.}}</li>{{end}}</ul>{{end}}` +
 		`<div style="margin:0.2em 0;"><span style="font-weight:600;">Estimands the data support:</span> ` +
 		`{{range .Supported}}<span class="cp-badge" style="background:` + ColorGood + `;margin-right:0.3em;">{{.}}</span>{{end}}` +
 		`{{if .Unsupported}} <span style="color:` + ColorMuted + `;">not supported: {{range $i, $e := .Unsupported}}{{if $i}}, {{end}}{{$e}}{{end}}</span>{{end}}</div>` +
-		`<div style="margin:0.3em 0;"><span style="font-weight:600;">Remedy:</span> {{.Remedy}}</div>` +
+		`{{range .Remedies}}<div style="margin:0.3em 0;"><span style="font-weight:600;">{{.Label}}:</span> {{.Text}}` +
+		`{{if .Who}}<div style="margin:0.1em 0 0 1.1em;color:` + ColorMuted + `;">who: {{.Who}}</div>{{end}}</div>{{end}}` +
 		`{{if .Trim}}<div style="margin:0.3em 0;color:` + ColorMuted + `;">{{.Trim}}</div>{{end}}` +
 		`{{.Cautions}}</div>`))
 
-// verdictPanel renders a verdict with its status colour, reasons, supported
-// estimands, remedy, what trimming would drop, and the cautions.
+// verdictPanel renders a verdict from its data: status, the estimands'
+// statuses with their findings and precision figures, the findings' texts
+// (reasons and notes), the remedies with who they concern, what trimming
+// would drop, and the cautions. Nothing is judged here.
 func verdictPanel(v *causal.Verdict) string {
-	vv := verdictView{Status: v.Status, Headline: verdictHeadline(v), Reasons: v.Reasons, Supported: v.Supported,
-		Remedy: v.Remedy, Cautions: template.HTML(cautionsHTML())}
+	if err := v.Err(); err != nil {
+		return ErrorPanel(err)
+	}
+	vv := verdictView{Status: string(v.Status), Headline: verdictHeadline(v), Reasons: v.Reasons, Notes: v.Notes, Supported: v.Supported,
+		Cautions: template.HTML(cautionsHTML())}
 	switch v.Status {
 	case causal.Adequate:
 		vv.StatusClass, vv.Border = "cp-adequate", ColorGood
@@ -520,14 +549,31 @@ func verdictPanel(v *causal.Verdict) string {
 	default:
 		vv.StatusClass, vv.Border = "cp-limited", ColorWarn
 	}
-	sup := map[string]bool{}
-	for _, e := range v.Supported {
-		sup[e] = true
-	}
 	for _, e := range estimandsAll {
-		if !sup[e] {
+		ev := v.Estimands[e]
+		if ev == nil {
+			continue
+		}
+		colour := map[causal.EstimandStatus]string{causal.Supported: ColorGood, causal.SupportedWithCaution: ColorWarn, causal.NotSupported: ColorBad}[ev.Status]
+		var codes []string
+		for _, c := range ev.Findings {
+			if c != causal.FindingPrecision {
+				codes = append(codes, string(c))
+			}
+		}
+		vv.Estimands = append(vv.Estimands, verdictEstimandRow{Estimand: e, Status: strings.ReplaceAll(string(ev.Status), "_", " "), Colour: colour,
+			Findings: strings.Join(codes, ", "), ESS: formatFixed(float64(ev.ESSTreated), 1) + " / " + formatFixed(float64(ev.ESSControl), 1),
+			Largest: formatPercent(float64(ev.LargestWeightShare)), Inflation: formatFixed(float64(ev.VarianceInflation), 2)})
+		if ev.Status == causal.NotSupported {
 			vv.Unsupported = append(vv.Unsupported, e)
 		}
+	}
+	for k, r := range v.Remedies {
+		label := "Remedy"
+		if k > 0 {
+			label = "Alternative"
+		}
+		vv.Remedies = append(vv.Remedies, verdictRemedyRow{Label: label, Text: r.Text, Who: r.WhoText})
 	}
 	if v.TrimThreshold > 0 {
 		vv.Trim = fmt.Sprintf("Trimming to scores in [%s, %s] would drop %s treated and %s control units (the estimand then becomes the trimmed population).",

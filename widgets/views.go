@@ -685,11 +685,15 @@ func supportHeadline(s *causal.Support) string {
 
 func cellsHeadline(c *causal.Cells) string {
 	on := strings.Join(c.Columns, " × ")
+	chance := c.Violating - c.Structural
 	switch {
-	case c.Violating > 0:
-		return fmt.Sprintf("Positivity is violated on %s: %s of %s cells have an empty arm, holding %s units (%s); no comparison exists for them (%s treated without controls, %s controls without treated units).",
-			on, formatCount(c.Violating), formatCount(len(c.Rows)), formatCount(c.UnitsViolating), formatPercent(c.ShareViolating),
-			formatCount(c.TreatedViolating), formatCount(c.ControlViolating))
+	case c.Structural > 0:
+		return fmt.Sprintf("Positivity is violated on %s: %s of %s cells lack an arm where random assignment would not leave one empty, holding %s units (%s); no comparison exists for them (%s cells with an empty arm in all: %s treated without controls, %s controls without treated units).",
+			on, formatCount(c.Structural), formatCount(len(c.Rows)), formatCount(c.UnitsStructural), formatPercent(float64(c.UnitsStructural)/float64(max(1, c.N))),
+			formatCount(c.Violating), formatCount(c.TreatedViolating), formatCount(c.ControlViolating))
+	case chance > 0:
+		return fmt.Sprintf("No violation on %s: %s of %s cells lack an arm, holding %s units, but they are small enough for random assignment to leave an arm empty (chance screen, %s per cell); %s cells are thin (an arm with fewer than %d units).",
+			on, formatCount(chance), formatCount(len(c.Rows)), formatCount(c.UnitsViolating), formatNumber(c.ChanceThreshold), formatCount(c.ThinCells), c.Options.Thin)
 	case c.ThinCells > 0:
 		return fmt.Sprintf("Every cell of %s holds both arms, but %s of %s cells are thin (an arm with fewer than %d units): estimates there rest on very few units.",
 			on, formatCount(c.ThinCells), formatCount(len(c.Rows)), c.Options.Thin)
@@ -759,17 +763,27 @@ func balanceHeadline(b *causal.BalanceSheet) string {
 }
 
 func verdictHeadline(v *causal.Verdict) string {
+	if v.Err() != nil {
+		return "No verdict: " + v.Err().Error()
+	}
 	sup := strings.Join(v.Supported, ", ")
 	if sup == "" {
 		sup = "none"
 	}
+	target := v.Target
+	ts := strings.ReplaceAll(string(v.StatusOf(estimandOf(target))), "_", " ")
 	switch v.Status {
 	case causal.Adequate:
-		return "Overlap is adequate on these covariates: the data support " + sup + "."
+		return "Overlap is adequate on these covariates: every estimand is supported (" + sup + ")."
 	case causal.Violated:
-		return fmt.Sprintf("Positivity is violated: some units have no counterpart in the other arm (%d reason%s below). The data still support %s.", len(v.Reasons), plural(len(v.Reasons)), sup)
+		return fmt.Sprintf("Positivity is violated: some units have no counterpart in the other arm (%d finding%s below). The %s is %s; the data support %s.", len(v.Reasons), plural(len(v.Reasons)), target, ts, sup)
 	}
-	return fmt.Sprintf("Overlap is limited (%d reason%s below): estimates lean on few comparable units. The data support %s.", len(v.Reasons), plural(len(v.Reasons)), sup)
+	return fmt.Sprintf("Overlap is limited (%d finding%s below). The %s is %s; the data support %s.", len(v.Reasons), plural(len(v.Reasons)), target, ts, sup)
+}
+
+func estimandOf(s string) causal.Estimand {
+	e, _ := causal.ParseEstimand(s)
+	return e
 }
 
 func plural(n int) string {

@@ -156,7 +156,7 @@ func TestHeadlines(t *testing.T) {
 		{r.Balance, []string{"Before weighting", "|SMD| > 0.1"}},
 		{r.Weighted, []string{"After ATE weights"}},
 		// Large-lot pool homes nearly all audited: the ATT is withdrawn too.
-		{r.Verdict, []string{"Positivity is violated", "The data still support ATO"}},
+		{r.Verdict, []string{"Positivity is violated", "The ATE is not supported; the data support ATO"}},
 		{r.Weights, []string{"effective sample size"}},
 		{r.Estimates, []string{"estimates the ATE at", "do not support the ATE"}},
 		{r.Effect, []string{"IPW, normalised (Hájek) estimates the ATE at", "extrapolation"}},
@@ -218,7 +218,7 @@ func ExampleHTML() {
 	fmt.Println(Headline(cells))
 	fmt.Println(strings.Contains(h, "violation: no treated units"))
 	// Output:
-	// Positivity is violated on district × pool: 2 of 10 cells have an empty arm, holding 552 units (13.8%); no comparison exists for them (0 treated without controls, 552 controls without treated units).
+	// Positivity is violated on district × pool: 1 of 10 cells lack an arm where random assignment would not leave one empty, holding 537 units (13.4%); no comparison exists for them (2 cells with an empty arm in all: 0 treated without controls, 552 controls without treated units).
 	// true
 }
 
@@ -229,6 +229,6 @@ func ExampleHeadline() {
 	fmt.Println(Headline(sc.Verdict(causal.VerdictOptions{})))
 	fmt.Println(Headline(s.Erosion()))
 	// Output:
-	// Positivity is violated: some units have no counterpart in the other arm (5 reasons below). The data still support ATO.
+	// Positivity is violated: some units have no counterpart in the other arm (9 findings below). The ATE is not supported; the data support ATO.
 	// Adjusting for all 7 covariates leaves 23.9% of units in cells with both arms (treated with controls 37.8%, controls with treated 19.0%); the largest loss comes with home_age (23.7 points).
 }

@@ -173,7 +173,7 @@ func TestReportUsageAndDataErrors(t *testing.T) {
 		{"non-numeric", []string{"--data", bad, "--treatment", "t", "--outcome", "y", "--covariates", "x"}, []string{`covariate "x"`, `row 4 holds "four"`}},
 		{"one-level treatment", []string{"--data", one, "--treatment", "t", "--outcome", "y", "--covariates", "x"}, []string{`treatment "t" has a single value`}},
 		{"missing flags", []string{"--data", nswData}, []string{"missing --treatment, --outcome, --covariates"}},
-		{"bad estimand", []string{"--data", nswData, "--treatment", "treat", "--outcome", "re78", "--covariates", "age", "--estimand", "ATX"}, []string{"--estimand", "ATE, ATT or ATO"}},
+		{"bad estimand", []string{"--data", nswData, "--treatment", "treat", "--outcome", "re78", "--covariates", "age", "--estimand", "ATX"}, []string{"--estimand", "ATE, ATT, ATC or ATO"}},
 		{"bad trim", []string{"--data", nswData, "--treatment", "treat", "--outcome", "re78", "--covariates", "age", "--trim", "0.7"}, []string{"trim", "0 ≤ α < 0.5"}},
 		{"bad gate", []string{"--data", nswData, "--treatment", "treat", "--outcome", "re78", "--covariates", "age", "--fail-on", "bad"}, []string{"--fail-on", "violated or limited"}},
 	}
@@ -216,7 +216,7 @@ func TestReportGateOnDeterministicAssignment(t *testing.T) {
 	if r.code != 3 {
 		t.Fatalf("exit %d, want 3; stdout %s stderr %s", r.code, r.stdout, r.stderr)
 	}
-	if !strings.Contains(r.stderr, "verdict is violated") {
+	if !strings.Contains(r.stderr, "graded violated") {
 		t.Errorf("stderr %q", r.stderr)
 	}
 	m := validate(t, js)
@@ -304,5 +304,71 @@ func TestReportGateJudgesTrimmedUnits(t *testing.T) {
 	m := validate(t, js)
 	if m["verdict"].(map[string]any)["status"] != "violated" || m["verdict_trimmed"].(map[string]any)["status"] == "violated" {
 		t.Errorf("verdicts: data %v, trimmed %v", m["verdict"], m["verdict_trimmed"])
+	}
+}
+
+// A numeric covariate with one stray text field is refused with the flag that
+// fixes it (--categorical), and --categorical makes the run go through.
+func TestReportCategoricalFlag(t *testing.T) {
+	var b strings.Builder
+	b.WriteString("x,t,y\n")
+	for i := 0; i < 200; i++ {
+		x := fmt.Sprint(1 + i%7)
+		if i == 7 {
+			x = "0x1p3"
+		}
+		fmt.Fprintf(&b, "%s,%d,%d\n", x, i%2, i%5)
+	}
+	p := writeCSV(t, "stray.csv", b.String())
+	args := []string{"report", "--data", p, "--treatment", "t", "--outcome", "y", "--covariates", "x"}
+	r := runCmd(t, args...)
+	if r.code != 1 || !strings.Contains(r.stderr, `--categorical "x"`) || strings.Contains(r.stderr, "AsCategory") {
+		t.Errorf("stray text: exit %d, stderr %q; want 1 naming --categorical", r.code, r.stderr)
+	}
+	if r := runCmd(t, append(args, "--categorical", "x,")...); r.code != 1 || !strings.Contains(r.stderr, "--categorical") {
+		t.Errorf("--categorical with an empty name: exit %d, stderr %q", r.code, r.stderr)
+	}
+	if r := runCmd(t, append(args, "--categorical", "x")...); r.code != 0 {
+		t.Errorf("--categorical x: exit %d, stderr %q", r.code, r.stderr)
+	}
+}
+
+// The gate judges the estimand --estimand names: on the water scenario the
+// ATO is supported (exit 0 with --fail-on limited), the ATE is withdrawn by
+// a violation (harbour; exit 3 with --fail-on violated). --cells and --bins
+// choose the positivity cells; without any the JSON says why.
+func TestReportGateJudgesEstimand(t *testing.T) {
+	data := "../../../testdata/water_audits.csv"
+	base := []string{"report", "--data", data, "--treatment", "audit", "--treated-level", "yes", "--outcome", "litres_per_day",
+		"--covariates", "household_size,lot_m2,home_age,last_summer_lpd,pool,district,income_band"}
+	if r := runCmd(t, append(base, "--estimand", "ATO", "--fail-on", "limited")...); r.code != 0 {
+		t.Errorf("ATO --fail-on limited: exit %d: %s", r.code, r.stderr)
+	}
+	if r := runCmd(t, append(base, "--estimand", "ATE", "--fail-on", "violated")...); r.code != 3 || !strings.Contains(r.stderr, "the ATE is not supported") {
+		t.Errorf("ATE --fail-on violated: exit %d: %s", r.code, r.stderr)
+	}
+	js := filepath.Join(t.TempDir(), "c.json")
+	if r := runCmd(t, append(base, "--estimand", "ATC", "--cells", "lot_m2,pool", "--bins", "10", "--json", js)...); r.code != 0 {
+		t.Fatalf("--cells: exit %d: %s", r.code, r.stderr)
+	}
+	m := validate(t, js)
+	cols := m["cells"].(map[string]any)["columns"]
+	if fmt.Sprint(cols) != "[lot_m2 pool]" {
+		t.Errorf("cells columns %v", cols)
+	}
+	v := m["verdict"].(map[string]any)
+	if v["target"] != "ATC" || v["estimands"].(map[string]any)["ATO"].(map[string]any)["status"] != "supported" {
+		t.Errorf("verdict %v", v["estimands"])
+	}
+	js2 := filepath.Join(t.TempDir(), "n.json")
+	if r := runCmd(t, "report", "--data", data, "--treatment", "audit", "--treated-level", "yes", "--outcome", "litres_per_day",
+		"--covariates", "household_size,lot_m2", "--json", js2); r.code != 0 {
+		t.Fatalf("no cells: exit %d: %s", r.code, r.stderr)
+	}
+	if m := validate(t, js2); m["cells"] != nil || !strings.Contains(fmt.Sprint(m["cells_absent"]), "--cells") {
+		t.Errorf("cells %v, cells_absent %v", m["cells"], m["cells_absent"])
+	}
+	if r := runCmd(t, append(base, "--bins", "1")...); r.code != 1 || !strings.Contains(r.stderr, "--bins") {
+		t.Errorf("--bins 1: exit %d: %s", r.code, r.stderr)
 	}
 }

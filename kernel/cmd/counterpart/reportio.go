@@ -62,22 +62,26 @@ func caliperValue(s string) (float64, error) {
 
 // covariateList splits --covariates, refusing empty names (", ," would
 // otherwise run unadjusted) and names given twice.
-func covariateList(s string) ([]string, error) {
+func covariateList(s string) ([]string, error) { return nameList("--covariates", s) }
+
+// nameList reads the comma-separated column names of a flag: no empty name,
+// none twice.
+func nameList(flag, s string) ([]string, error) {
 	parts := strings.Split(s, ",")
 	seen := map[string]bool{}
-	covs := make([]string, 0, len(parts))
+	names := make([]string, 0, len(parts))
 	for i, c := range parts {
 		c = strings.TrimSpace(c)
 		if c == "" {
-			return nil, fmt.Errorf("--covariates %q: name %d of %d is empty: list column names separated by commas, e.g. --covariates age,income", s, i+1, len(parts))
+			return nil, fmt.Errorf("%s %q: name %d of %d is empty: list column names separated by commas, e.g. %s age,income", flag, s, i+1, len(parts), flag)
 		}
 		if seen[c] {
-			return nil, fmt.Errorf("--covariates: %q is listed twice", c)
+			return nil, fmt.Errorf("%s: %q is listed twice", flag, c)
 		}
 		seen[c] = true
-		covs = append(covs, c)
+		names = append(names, c)
 	}
-	return covs, nil
+	return names, nil
 }
 
 // checkOutputPaths refuses an output on top of the data or of the other
@@ -103,11 +107,11 @@ func checkOutputPaths(data, jsonOut, htmlOut string) error {
 // flagFor names a Study setting as the report command's flag.
 func flagFor(setting, value string) string {
 	name := map[string]string{"Treat": "--treatment", "TreatedLevel": "--treated-level", "Outcome": "--outcome",
-		"Adjust": "--covariates", "DropIncomplete": "--drop-incomplete"}[setting]
+		"Adjust": "--covariates", "DropIncomplete": "--drop-incomplete", "AsCategory": "--categorical"}[setting]
 	if name == "" {
 		return causal.MethodName(setting, value)
 	}
-	if value != "" && setting == "TreatedLevel" {
+	if value != "" && (setting == "TreatedLevel" || setting == "AsCategory") {
 		return name + " " + strconv.Quote(value)
 	}
 	return name
