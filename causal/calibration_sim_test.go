@@ -104,3 +104,36 @@ func TestCalibrationTailSimulation(t *testing.T) {
 		}
 	}
 }
+
+// The tail check reaches the verdict as a calibration_tail caution: on 20
+// misspecified designs (quadratic term omitted, as in the simulation above)
+// most verdicts carry it, on 20 correctly specified ones almost none do.
+// Simulation of our own; bounds from the tail check's rates above (289/300
+// flagged when misspecified, 4/300 when correct).
+func TestVerdictCalibrationFinding(t *testing.T) {
+	count := func(q float64) int {
+		k := 0
+		for s := uint64(0); s < 20; s++ {
+			v := calibrationSample(9000+s, 1000, -1, 0.5, q).Propensity().Verdict(causal.VerdictOptions{})
+			if v.Err() != nil {
+				t.Fatal(v.Err())
+			}
+			for _, f := range v.Findings {
+				if f.Code == causal.FindingCalibrationTail {
+					if f.Effect != causal.Caution || len(f.Estimands) != 2 {
+						t.Errorf("calibration finding %+v: want a caution on two estimands", f)
+					}
+					k++
+					break
+				}
+			}
+		}
+		return k
+	}
+	if k := count(0.5); k < 16 {
+		t.Errorf("misspecified: %d of 20 verdicts carry calibration_tail; want ≥ 16", k)
+	}
+	if k := count(0); k > 3 {
+		t.Errorf("correct model: %d of 20 verdicts carry calibration_tail; want ≤ 3", k)
+	}
+}

@@ -45,6 +45,12 @@ const (
 	// and the variance inflation of an estimand's weights; a caution when
 	// the inflation is large and beyond chance.
 	FindingPrecision FindingCode = "precision"
+	// FindingCalibrationTail: in the lowest or highest decile of the scores
+	// the observed share treated differs from the mean score beyond chance
+	// (CalibrationTest's exact binomial tail check): the scores that drive
+	// the weights and the other rules are not trustworthy there; add terms
+	// to the propensity model (a caution).
+	FindingCalibrationTail FindingCode = "calibration_tail"
 )
 
 // FindingEffect is what a finding does to the estimands it lists.
@@ -113,6 +119,7 @@ var verdictRules = []verdictRule{
 	{supportStats, supportFindings},
 	{extremeStats, extremeFindings},
 	{precisionStats, precisionFindings},
+	{nil, calibrationFindings},
 }
 
 const methodHyper = "exact hypergeometric chance of a one-arm group under random assignment with the same arm sizes, Bonferroni over the groups tested"
@@ -634,4 +641,28 @@ func (j *judge) withinChance(k int) string {
 		return "as chance gives"
 	}
 	return fmt.Sprintf("more than chance gives, but the excess is below %.0f%% of the arm: too few units to change the verdict", 100*j.o.MinShare)
+}
+
+// calibrationFindings turns the tail check of Scores.CalibrationTest (exact
+// binomial test of the treated count in the lowest and highest score decile
+// against the decile's mean score, at CalibrationAlpha/2 per tail) into
+// cautions. Miscalibration in the lowest decile misstates the large weights
+// 1/e and (1−e)/e of the treated units there, which the ATE and the ATC use;
+// in the highest decile the weights of the controls, which the ATE and the
+// ATT use. A trimmed population is judged by the scores that defined it, not
+// by a refit, so the check applies to fitted scores only.
+func calibrationFindings(j *judge) []Finding {
+	if j.sc.defE != nil {
+		return nil
+	}
+	var out []Finding
+	for _, t := range j.sc.CalibrationTest().TailMiscalibrated() {
+		f := Finding{Code: FindingCalibrationTail, Effect: Caution, Estimands: armEstimands(t.Decile == "highest"),
+			Observed: Num(t.Observed), Expected: Num(t.Expected), PValue: Num(t.P),
+			Method: "two-sided exact binomial test of the treated count in the decile against its mean score (as R's binom.test computes it), Bonferroni over the two tails"}
+		f.Text = fmt.Sprintf("in the %s decile of the scores %d of %d units are treated where the scores expect %.1f (mean score %.3f, p = %.3g): the scores that drive the weights and this verdict are not trustworthy there; add terms to the propensity model (squares, products, splines of the covariates that differ most)",
+			t.Decile, t.Observed, t.N, t.Expected, t.MeanScore, t.P)
+		out = append(out, f)
+	}
+	return out
 }

@@ -246,6 +246,29 @@ func (sc *Scores) Trim(rule TrimRule) *Trimmed {
 		return tr
 	}
 	tr.Profile = profile(d, invert(tr.Kept))
+	sub, ks, dropped := sc.keptPopulation(rows)
+	tr.DroppedTerms = dropped
+	tr.Design = sub
+	tr.Scores = ks
+	if !math.IsNaN(tr.Alpha) && tr.Alpha > 0 {
+		tr.Scores.trimAlpha = tr.Alpha
+	}
+	if err := tr.Scores.Err(); err != nil {
+		tr.err = fmt.Errorf("trim: refitting the propensity model on the %d kept units: %w", sub.N, err)
+		return tr
+	}
+	tr.Population = fmt.Sprintf("the estimand has changed: effects now refer to the %d units (%d treated, %d control) with %s, not to the original %d units; %d treated and %d controls were dropped",
+		sub.N, tr.KeptTreated, tr.KeptControl, where, d.N, tr.DroppedTreated, tr.DroppedControl)
+	return tr
+}
+
+// keptPopulation is the population of the design rows kept (a remedy's
+// units): a design of its own with the propensity model refitted on it for
+// estimation, judged by the scores that defined it (the original scores of
+// the kept units), so that the refit cannot re-trigger the rule that chose
+// the units. It returns the names of terms that no longer vary.
+func (sc *Scores) keptPopulation(rows []int) (*Design, *Scores, []string) {
+	d := sc.Design
 	sub, kc, _ := subDesign(d, rows, nil)
 	sub.parent = nil // a design of its own (propensityFor indexes it from 0)
 	sub.RowsDropped = d.RowsDropped
@@ -255,25 +278,16 @@ func (sc *Scores) Trim(rule TrimRule) *Trimmed {
 			sub.Y[r] = d.Y[k]
 		}
 	}
+	var dropped []string
 	for _, j := range kcDropped(d, kc) {
-		tr.DroppedTerms = append(tr.DroppedTerms, d.Terms[j].Name)
+		dropped = append(dropped, d.Terms[j].Name)
 	}
-	tr.Design = sub
-	tr.Scores = propensityFor(sub, sc.opts)
-	if !math.IsNaN(tr.Alpha) && tr.Alpha > 0 {
-		tr.Scores.trimAlpha = tr.Alpha
-	}
-	tr.Scores.defE = make([]float64, 0, len(rows))
+	ks := propensityFor(sub, sc.opts)
+	ks.defE = make([]float64, 0, len(rows))
 	for _, k := range rows {
-		tr.Scores.defE = append(tr.Scores.defE, sc.judgedScores()[k])
+		ks.defE = append(ks.defE, sc.judgedScores()[k])
 	}
-	if err := tr.Scores.Err(); err != nil {
-		tr.err = fmt.Errorf("trim: refitting the propensity model on the %d kept units: %w", sub.N, err)
-		return tr
-	}
-	tr.Population = fmt.Sprintf("the estimand has changed: effects now refer to the %d units (%d treated, %d control) with %s, not to the original %d units; %d treated and %d controls were dropped",
-		sub.N, tr.KeptTreated, tr.KeptControl, where, d.N, tr.DroppedTreated, tr.DroppedControl)
-	return tr
+	return sub, ks, dropped
 }
 
 func invert(b []bool) []bool {

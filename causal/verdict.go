@@ -824,7 +824,9 @@ func (sc *Scores) String() string {
 	if sc.Extreme > 0 {
 		fmt.Fprintf(&b, "  %d units have fitted scores within 1e-8 of 0 or 1\n", sc.Extreme)
 	}
-	_ = math.Abs
+	if c := sc.CalibrationTest(); c.Err() == nil {
+		b.WriteString(c.String())
+	}
 	return b.String()
 }
 
