@@ -4,7 +4,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"sort"
 	"strings"
 
 	"gonum.org/v1/gonum/stat"
@@ -157,38 +156,151 @@ func balanceForWith(d *Design, w []float64, label string, o BalanceOptions) *Bal
 			return &BalanceSheet{err: errors.New("balance: the weights are zero for every unit of one arm")}
 		}
 	}
-	b := &BalanceSheet{Weighted: w != nil, Label: label, Options: o}
-	for j := 1; j < d.P; j++ {
-		x := d.Col(j)
-		r := BalanceRow{Term: d.Terms[j].Name, Binary: d.Terms[j].Binary}
-		r.SMD, r.VarianceRatio, r.KS = balanceOne(x, d.T, nil, r.Binary)
-		r.SMDWeighted, r.VarianceRatioWeighted, r.KSWeighted = math.NaN(), math.NaN(), math.NaN()
-		if w != nil {
-			r.SMDWeighted, r.VarianceRatioWeighted, r.KSWeighted = balanceOne(x, d.T, w, r.Binary)
-			if !o.WeightedSD {
-				r.SMDWeighted = smdUnweightedSD(x, d.T, w, r.Binary)
+	b := &BalanceSheet{Weighted: w != nil, Label: label, Options: o, Rows: make([]BalanceRow, d.P-1)}
+	// One column per task, columns in parallel (each computed by one worker
+	// in row order, so the result does not depend on the number of cores).
+	// Tasks are groups of balanceGroup adjacent columns, read from the
+	// row-major design in one pass per group.
+	var ws []float64 // the weights split by arm (treated first), shared
+	if w != nil {
+		ws = make([]float64, d.N)
+		a, c := 0, d.Treated
+		for i, v := range w {
+			if d.T[i] == 1 {
+				ws[a] = v
+				a++
+			} else {
+				ws[c] = v
+				c++
 			}
 		}
-		b.Rows = append(b.Rows, r)
 	}
+	groups := (d.P - 1 + balanceGroup - 1) / balanceGroup
+	scratch := make([]*balanceScratch, columnWorkers(groups, d.N, balanceScratchBytes))
+	parallelColumns(groups, len(scratch), func(worker, g int) {
+		if scratch[worker] == nil {
+			scratch[worker] = newBalanceScratch(d.N, w != nil)
+		}
+		s := scratch[worker]
+		j0, j1 := 1+g*balanceGroup, min(d.P, 1+(g+1)*balanceGroup)
+		nan := s.nan[:j1-j0]
+		clear(nan)
+		a, c := 0, d.Treated
+		for i := 0; i < d.N; i++ {
+			k := c
+			if d.T[i] == 1 {
+				k = a
+				a++
+			} else {
+				c++
+			}
+			row := d.X[i*d.P+j0 : i*d.P+j1]
+			for q, v := range row {
+				s.xg[q][k] = v
+				nan[q] = nan[q] || v != v
+			}
+		}
+		for q := range j1 - j0 {
+			b.Rows[j0+q-1] = balanceColumn(d, j0+q, s.xg[q], ws, nan[q], o, s)
+		}
+	})
 	return b
 }
 
-func balanceOne(x, t, w []float64, binary bool) (smd, vr, ks float64) {
-	var x1, x0, w1, w0 []float64
+// balanceGroup is the number of adjacent design columns a balance task
+// reads from the design in one pass.
+const balanceGroup = 4
+
+// balanceScratchBytes is the scratch memory of one balance worker per row.
+const balanceScratchBytes = (balanceGroup+6)*8 + 2*4 + 4/8
+
+// balanceScratch holds one worker's buffers, reused across columns: the
+// column split by arm (treated first), its weights, and the sort buffers.
+type balanceScratch struct {
+	xg               [balanceGroup][]float64 // a group's columns split by arm
+	nan              [balanceGroup]bool
+	ws, w2, out      []float64
+	keys, tmpK       []uint64
+	idx, tmpI, count []int32
+}
+
+func newBalanceScratch(n int, weighted bool) *balanceScratch {
+	s := &balanceScratch{out: make([]float64, n), keys: make([]uint64, n), tmpK: make([]uint64, n),
+		idx: make([]int32, n), tmpI: make([]int32, n)}
+	for q := range s.xg {
+		s.xg[q] = make([]float64, n)
+	}
+	if weighted {
+		s.ws, s.w2 = make([]float64, n), make([]float64, n)
+	}
+	return s
+}
+
+// balanceColumn is the balance row of design column j, given the column
+// and the weights (nil: none) split by arm, treated first; nan says whether
+// the column holds a NaN.
+func balanceColumn(d *Design, j int, x, w []float64, nan bool, o BalanceOptions, s *balanceScratch) BalanceRow {
+	r := BalanceRow{Term: d.Terms[j].Name, Binary: d.Terms[j].Binary}
+	n1 := d.Treated
+	x1, x0 := x[:n1], x[n1:d.N]
+	var w1, w0 []float64
+	if w != nil {
+		w1, w0 = w[:n1], w[n1:d.N]
+	}
+	var v1, v0 float64 // the unweighted variances of the SMD's denominator
+	r.SMD, r.VarianceRatio, v1, v0 = smdRatio(x1, x0, nil, nil, r.Binary)
+	r.SMDWeighted, r.VarianceRatioWeighted, r.KSWeighted = math.NaN(), math.NaN(), math.NaN()
+	if w != nil {
+		var m1, m0 float64
+		r.SMDWeighted, r.VarianceRatioWeighted, _, _ = smdRatio(x1, x0, w1, w0, r.Binary)
+		if !o.WeightedSD {
+			m1, _ = meanVar(x1, w1)
+			m0, _ = meanVar(x0, w0)
+			r.SMDWeighted = smdValue(m1, m0, v1, v0)
+		}
+	}
+	if nan { // as stat.KolmogorovSmirnov
+		r.KS = math.NaN()
+		return r
+	}
+	if r.Binary {
+		// Two values: the CDFs differ only at 0, so KS = |F1(0) − F0(0)|.
+		r.KS = math.Abs(zeroShare(x1, nil) - zeroShare(x0, nil))
+		if w != nil {
+			r.KSWeighted = math.Abs(zeroShare(x1, w1) - zeroShare(x0, w0))
+		}
+		return r
+	}
+	// Each arm sorted once (stably, with its weights carried along); the
+	// order serves the unweighted and the weighted KS statistic.
+	ws1, ws0 := sortArm(x1, w1, s, 0), sortArm(x0, w0, s, n1)
+	r.KS = stat.KolmogorovSmirnov(x1, nil, x0, nil)
+	if w != nil {
+		r.KSWeighted = stat.KolmogorovSmirnov(x1, ws1, x0, ws0)
+	}
+	return r
+}
+
+// zeroShare is the (weighted) share of the values of x that are 0.
+func zeroShare(x, w []float64) float64 {
+	var zero, all float64
 	for i, v := range x {
 		wi := 1.0
 		if w != nil {
 			wi = w[i]
 		}
-		if t[i] == 1 {
-			x1 = append(x1, v)
-			w1 = append(w1, wi)
-		} else {
-			x0 = append(x0, v)
-			w0 = append(w0, wi)
+		all += wi
+		if v == 0 {
+			zero += wi
 		}
 	}
+	return zero / all
+}
+
+// smdRatio is the SMD and variance ratio of one term between the arms
+// (weights nil: unweighted; see BalanceSheet for the formulas), with the
+// arm variances in the SMD's denominator (p_a(1 − p_a) for a 0/1 term).
+func smdRatio(x1, x0, w1, w0 []float64, binary bool) (smd, vr, v1, v0 float64) {
 	m1, v1 := meanVar(x1, w1)
 	m0, v0 := meanVar(x0, w0)
 	vr = math.NaN()
@@ -197,48 +309,141 @@ func balanceOne(x, t, w []float64, binary bool) (smd, vr, ks float64) {
 	} else if v0 > 0 {
 		vr = v1 / v0
 	}
-	smd = smdValue(m1, m0, v1, v0)
-	sortPair(x1, w1)
-	sortPair(x0, w0)
-	ks = stat.KolmogorovSmirnov(x1, w1, x0, w0)
-	return smd, vr, ks
+	return smdValue(m1, m0, v1, v0), vr, v1, v0
 }
 
-// smdUnweightedSD is the weighted SMD over the unweighted pooled SD:
-// (m1 − m0)/√((s1² + s0²)/2) with weighted means m_a and the arms' unweighted
-// variances s_a² (p_a(1 − p_a) for a 0/1 term).
-func smdUnweightedSD(x, t, w []float64, binary bool) float64 {
-	var x1, x0, w1, w0 []float64
-	for i, v := range x {
-		if t[i] == 1 {
-			x1, w1 = append(x1, v), append(w1, w[i])
-		} else {
-			x0, w0 = append(x0, v), append(w0, w[i])
+// sortArm sorts x in place, stably, and, when w is given, returns w in the
+// same order in s.ws[off:off+len(x)]. It is a distribution sort: one pass
+// scatters the values into about len(x)/4 buckets by their place between the
+// minimum and the maximum (the bucket index is a non-decreasing function of
+// the value, so buckets are in order), then each bucket is sorted where it
+// lies: by insertion when it is small, else by radixSort of floatKey (many
+// ties, or values crowded in a narrow range, stay O(n)).
+func sortArm(x, w []float64, s *balanceScratch, off int) []float64 {
+	n := len(x)
+	var ws []float64
+	if w != nil {
+		ws = s.ws[off : off+n]
+	}
+	if n == 0 {
+		return ws
+	}
+	lo, hi := x[0], x[0]
+	for _, v := range x {
+		if v < lo {
+			lo = v
+		}
+		if v > hi {
+			hi = v
 		}
 	}
-	m1, _ := meanVar(x1, w1)
-	m0, _ := meanVar(x0, w0)
-	p1, v1 := meanVar(x1, nil)
-	p0, v0 := meanVar(x0, nil)
-	if binary {
-		v1, v0 = p1*(1-p1), p0*(1-p0)
+	if lo == hi || n < 64 || math.IsInf(hi-lo, 0) {
+		radixSegment(x, w, ws, s)
+		return ws
 	}
-	return smdValue(m1, m0, v1, v0)
+	nb := max(1, n/4)
+	scale := float64(nb) / (hi - lo)
+	bucket := func(v float64) int { return min(nb-1, int((v-lo)*scale)) }
+	if cap(s.count) < nb+1 {
+		s.count = make([]int32, nb+1)
+	}
+	count := s.count[:nb+1]
+	clear(count)
+	for _, v := range x {
+		count[bucket(v)+1]++
+	}
+	for b := 1; b <= nb; b++ {
+		count[b] += count[b-1]
+	}
+	// Scatter into s.out (and ws), stably; count[b] ends at bucket b's end.
+	out := s.out[:n]
+	pos := s.tmpI[:nb]
+	for b := range pos {
+		pos[b] = count[b]
+	}
+	for i, v := range x {
+		b := bucket(v)
+		out[pos[b]] = v
+		if w != nil {
+			ws[pos[b]] = w[i]
+		}
+		pos[b]++
+	}
+	copy(x, out)
+	wsrc := ws
+	if w != nil {
+		// The scattered weights move to s.w2 so that ws can receive the
+		// sorted order of large buckets.
+		wsrc = s.w2[:n]
+		copy(wsrc, ws)
+	}
+	for b := 0; b < nb; b++ {
+		a, e := int(count[b]), int(count[b+1])
+		var from, to []float64 // the bucket's weights, scattered and sorted
+		if w != nil {
+			from, to = wsrc[a:e], ws[a:e]
+		}
+		switch {
+		case e-a == 1:
+			copy(to, from)
+		case e-a <= 64:
+			insertionSort(x[a:e], from, to)
+		case e > a:
+			radixSegment(x[a:e], from, to, s)
+		}
+	}
+	return ws
 }
 
-func sortPair(x, w []float64) {
-	idx := make([]int, len(x))
-	for i := range idx {
-		idx[i] = i
+// insertionSort sorts x stably, moving w along into ws (both nil when there
+// are no weights; ws may be w's copy or a separate slice of the same length).
+func insertionSort(x, w, ws []float64) {
+	if w != nil {
+		copy(ws, w)
 	}
-	sort.Slice(idx, func(a, b int) bool { return x[idx[a]] < x[idx[b]] })
-	xs := make([]float64, len(x))
-	ws := make([]float64, len(x))
-	for k, i := range idx {
-		xs[k], ws[k] = x[i], w[i]
+	for i := 1; i < len(x); i++ {
+		v := x[i]
+		var wv float64
+		if w != nil {
+			wv = ws[i]
+		}
+		j := i
+		for j > 0 && x[j-1] > v {
+			x[j] = x[j-1]
+			if w != nil {
+				ws[j] = ws[j-1]
+			}
+			j--
+		}
+		x[j] = v
+		if w != nil {
+			ws[j] = wv
+		}
 	}
-	copy(x, xs)
-	copy(w, ws)
+}
+
+// radixSegment sorts x stably by radixSort of floatKey and writes w in that
+// order to ws (w nil: no weights).
+func radixSegment(x, w, ws []float64, s *balanceScratch) {
+	n := len(x)
+	keys := s.keys[:n]
+	for i, v := range x {
+		keys[i] = floatKey(v)
+	}
+	var idx []int32
+	if w != nil {
+		idx = s.idx[:n]
+		for i := range idx {
+			idx[i] = int32(i)
+		}
+	}
+	keys, idx = radixSort(keys, idx, s.tmpK[:n], s.tmpI[:n])
+	for i, k := range keys {
+		x[i] = keyFloat(k)
+	}
+	for i, k := range idx {
+		ws[i] = w[k]
+	}
 }
 
 // String is the terminal view.

@@ -97,3 +97,18 @@ func BenchmarkCells(b *testing.B) {
 		})
 	}
 }
+
+// Balance before and after ATE weights (KS: each arm sorted once per
+// covariate), n = 1e6, p = 20.
+func BenchmarkBalance(b *testing.B) {
+	f, names := benchFrame(1000000, 20, 5)
+	sc := FromSource(f).Treat("t").Adjust(names...).Propensity()
+	w := sc.Weights(ATE)
+	if w.Err() != nil {
+		b.Fatal(w.Err())
+	}
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		benchSink = w.Balance()
+	}
+}

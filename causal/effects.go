@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"math"
 	"strings"
+	"sync"
 )
 
 // z975 is the 0.975 quantile of the standard normal distribution.
@@ -289,7 +290,7 @@ func (o estOut) se() float64 {
 // that does not target the estimand, infinite weights, an outcome model that
 // cannot be fitted) are returned by Err and shown by every view.
 func (sc *Scores) Effect(est Estimator, target Estimand, cells ...*Cells) *Effect {
-	return sc.EffectWith(EffectOptions{}, est, target, cells...)
+	return sc.effect(EffectOptions{}, est, target, cells, nil)
 }
 
 // EffectOptions tune how an Effect is computed.
@@ -304,6 +305,15 @@ type EffectOptions struct {
 // EffectWith is Effect with options; the SE method then names the
 // covariance used (e.g. "delta method (HC3)").
 func (sc *Scores) EffectWith(o EffectOptions, est Estimator, target Estimand, cells ...*Cells) *Effect {
+	return sc.effect(o, est, target, cells, nil)
+}
+
+// effect is EffectWith; why, when not nil, returns the reason the data do
+// not support the target (sc.unsupported), so that Effects judges it once.
+func (sc *Scores) effect(o EffectOptions, est Estimator, target Estimand, cells []*Cells, why func() string) *Effect {
+	if why == nil {
+		why = func() string { return sc.unsupported(target, cells) }
+	}
 	eff := &Effect{Estimator: est, Estimand: target, SEMethod: est.seMethod(), Supported: true,
 		Value: math.NaN(), SE: math.NaN(), CI95: Interval{math.NaN(), math.NaN()}, Mu1: math.NaN(), Mu0: math.NaN(),
 		Population: target.population()}
@@ -337,7 +347,7 @@ func (sc *Scores) EffectWith(o EffectOptions, est Estimator, target Estimand, ce
 		return eff
 	}
 	eff.N, eff.NTreated, eff.NControl = d.N, d.Treated, d.Control
-	if why := sc.unsupported(target, cells); why != "" {
+	if why := why(); why != "" {
 		eff.Supported = false
 		eff.Unsupported = why
 		eff.flag("unsupported_estimand", fmt.Sprintf("the data do not support the %s: %s", target, why))
@@ -945,9 +955,16 @@ func (sc *Scores) Effects(target Estimand, cells ...*Cells) *Estimates {
 		es.err = err
 		return es
 	}
+	// The support of the target is judged once for all the estimators.
+	var once sync.Once
+	var reason string
+	why := func() string {
+		once.Do(func() { reason = sc.unsupported(target, cells) })
+		return reason
+	}
 	for _, est := range AllEstimators {
 		if est.targets(target) {
-			es.Items = append(es.Items, sc.Effect(est, target, cells...))
+			es.Items = append(es.Items, sc.effect(EffectOptions{}, est, target, cells, why))
 		}
 	}
 	return es

@@ -6,6 +6,7 @@ import (
 	"runtime"
 	"strings"
 	"sync"
+	"sync/atomic"
 
 	"gonum.org/v1/gonum/floats"
 )
@@ -49,6 +50,50 @@ func parallelChunks(n int, fn func(k, lo, hi int)) {
 				fn(k, k*size, min((k+1)*size, n))
 			}
 		}()
+	}
+	wg.Wait()
+}
+
+// columnMemory bounds the scratch memory that columnWorkers lets column
+// workers hold at once.
+const columnMemory = 1 << 30
+
+// columnWorkers is the number of workers for m column tasks over n rows
+// whose scratch costs perRow bytes per row: the cores, at most m, and as
+// many as columnMemory allows (at least one).
+func columnWorkers(m, n, perRow int) int {
+	w := min(runtime.GOMAXPROCS(0), m)
+	if byMem := columnMemory / max(1, n*perRow); w > byMem {
+		w = byMem
+	}
+	return max(w, 1)
+}
+
+// parallelColumns runs fn(worker, k) for every task k in [0, m) on workers
+// goroutines; worker in [0, workers) identifies the goroutine, so that fn can
+// keep scratch buffers per worker. Each task's result must depend on k
+// only, never on the worker or the order.
+func parallelColumns(m, workers int, fn func(worker, k int)) {
+	if workers <= 1 || m <= 1 {
+		for k := 0; k < m; k++ {
+			fn(0, k)
+		}
+		return
+	}
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for w := 0; w < workers; w++ {
+		wg.Add(1)
+		go func(w int) {
+			defer wg.Done()
+			for {
+				k := int(next.Add(1) - 1)
+				if k >= m {
+					return
+				}
+				fn(w, k)
+			}
+		}(w)
 	}
 	wg.Wait()
 }

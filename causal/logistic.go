@@ -41,6 +41,10 @@ type logitOptions struct {
 	// the column scales of a previous fit of the same design, saving a pass.
 	startMu []float64
 	scale   []float64
+	// warm (Study.Propensity with a fit cache) is the coefficients of an
+	// earlier fit of the same data and specification: the full-design fit
+	// starts there, so it confirms them in one Newton step.
+	warm []float64
 	// muOut (lean fits only, length n) receives μ_i at the last β where the
 	// data were evaluated (fit.muBeta), for the rows with fw > 0: the caller
 	// gets the final scores without another pass of exponentials, as
@@ -94,21 +98,34 @@ func fitLogistic(X []float64, n, p int, t, fw, start []float64, o logitOptions) 
 	if len(o.scale) == p && o.ridge == 0 {
 		copy(scale, o.scale) // only conditions the solves (no penalty to scale)
 	} else {
-		sq := make([]float64, p)
-		var sw float64
-		for i := 0; i < n; i++ {
-			w := 1.0
-			if fw != nil {
-				w = fw[i]
-				if w == 0 {
-					continue
+		// Σ w x_j² and Σ w over row blocks in parallel, reduced in block order.
+		_, count := chunking(n)
+		parts := make([][]float64, count)
+		parallelChunks(n, func(k, lo, hi int) {
+			acc := make([]float64, p+1)
+			for i := lo; i < hi; i++ {
+				w := 1.0
+				if fw != nil {
+					w = fw[i]
+					if w == 0 {
+						continue
+					}
+				}
+				acc[p] += w
+				row := X[i*p : (i+1)*p]
+				for j, v := range row {
+					acc[j] += w * v * v
 				}
 			}
-			sw += w
-			row := X[i*p : (i+1)*p]
-			for j, v := range row {
-				sq[j] += w * v * v
+			parts[k] = acc
+		})
+		sq := make([]float64, p)
+		var sw float64
+		for _, acc := range parts {
+			for j := range sq {
+				sq[j] += acc[j]
 			}
+			sw += acc[p]
 		}
 		for j := range scale {
 			scale[j] = math.Sqrt(sq[j] / sw)

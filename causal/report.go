@@ -44,6 +44,10 @@ type ReportOptions struct {
 	// early, marked Partial). Progress reports the bootstrap's replicates.
 	Context  context.Context
 	Progress func(done, total int)
+	// Stage, when set, is called with the name of each stage as it starts
+	// (design, propensity, support, cells, verdict, trimming, balance,
+	// estimates, matching, bootstrap) and with "" when the report is built.
+	Stage func(name string)
 }
 
 // ReportData counts the rows.
@@ -163,6 +167,12 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	if err != nil {
 		return nil, err
 	}
+	stage := o.Stage
+	if stage == nil {
+		stage = func(string) {}
+	}
+	defer stage("")
+	stage("design")
 	d, err := s.Design()
 	if err != nil {
 		return nil, err
@@ -173,6 +183,7 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	if err := cancelled(o.Context); err != nil {
 		return nil, err
 	}
+	stage("propensity")
 	sc := s.Propensity()
 	if err := sc.Err(); err != nil {
 		return nil, err
@@ -184,8 +195,10 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	r.Data = ReportData{Rows: d.RowsTotal, RowsUsed: d.N, RowsDropped: d.RowsDropped, Treated: d.Treated, Control: d.Control}
 	r.Roles = d.Roles()
 	r.Propensity = sc
+	stage("support")
 	r.Support = sc.Support()
 	var cells []*Cells
+	stage("cells")
 	cellCols := o.Cells
 	copts := CellOptions{Bins: o.Bins}
 	if len(cellCols) == 0 {
@@ -204,6 +217,7 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	} else {
 		r.CellsAbsent = "no categorical or 0/1 covariate to define positivity cells by default: name the cell covariates (--cells a,b; continuous ones are cut into --bins quantile bins)"
 	}
+	stage("verdict")
 	vo := VerdictOptions{Target: o.Estimand}
 	r.Verdict = sc.Verdict(vo, cells...)
 	if err := r.Verdict.Err(); err != nil {
@@ -212,6 +226,7 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	noteFailedCells(r.Verdict, r.Cells)
 	est := sc
 	if trim {
+		stage("trimming")
 		tr := sc.Trim(rule)
 		if err := tr.Err(); err != nil {
 			return nil, fmt.Errorf("trim %s: %w", o.Trim, err)
@@ -246,6 +261,7 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	if err := cancelled(o.Context); err != nil {
 		return nil, err
 	}
+	stage("balance")
 	w := est.Weights(o.Estimand)
 	if err := w.Err(); err != nil {
 		// Weights cannot be formed (e.g. scores of 0 or 1 for an estimand
@@ -263,6 +279,7 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	if err := cancelled(o.Context); err != nil {
 		return nil, err
 	}
+	stage("estimates")
 	es := est.Effects(o.Estimand, estCells...)
 	if err := es.Err(); err != nil {
 		return nil, err
@@ -270,6 +287,7 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 	r.Estimates = es.Items
 	if o.Estimand != ATO {
 		// Matching on the logit score and subclassification on its quintiles.
+		stage("matching")
 		r.Matching = est.Match(MatchOptions{Estimand: o.Estimand, Caliper: o.Caliper})
 		r.Strata = est.Subclassify(0)
 		extra := []*Effect{r.Matching.Effect(estCells...), r.Strata.Effect(o.Estimand, estCells...)}
@@ -284,6 +302,7 @@ func BuildReport(s *Study, o ReportOptions) (*Report, error) {
 		return nil, err
 	}
 	if o.Bootstrap > 0 {
+		stage("bootstrap")
 		ctx := o.Context
 		if ctx == nil {
 			ctx = context.Background()

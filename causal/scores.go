@@ -130,7 +130,13 @@ func (s *Study) Propensity(opts ...FitOption) *Scores {
 	for _, f := range opts {
 		f(&o)
 	}
-	return propensityFor(d, o)
+	key := s.fitKey(d, o)
+	o.warm = readFitStart(s.fitDir, key, d.P)
+	sc := propensityFor(d, o)
+	if sc.err == nil && sc.Converged && len(sc.Separation) == 0 {
+		writeFitStart(s.fitDir, key, sc.beta)
+	}
+	return sc
 }
 
 func propensityFor(d *Design, o logitOptions) *Scores {
@@ -235,7 +241,11 @@ func propensityFor(d *Design, o logitOptions) *Scores {
 		}
 		sc.Converged = false
 	} else {
-		fit, err := fitLogistic(cur.X, cur.N, cur.P, cur.T, nil, nil, o)
+		var start []float64
+		if cur == d && len(o.warm) == d.P {
+			start = o.warm
+		}
+		fit, err := fitLogistic(cur.X, cur.N, cur.P, cur.T, nil, start, o)
 		if err != nil {
 			sc.err = fmt.Errorf("propensity model: %w", err)
 			return sc
@@ -605,56 +615,25 @@ func sortScores(e, t []float64) []scoreT {
 	return p
 }
 
-// sortScoresRun sorts scores in place: by an LSD radix sort on the IEEE-754
-// bit patterns (for non-negative floats they order like the numbers; 11-bit
-// digits, passes whose digit is the same for every key skipped) when the run
-// is long and holds no negative value or NaN, else by slices.Sort. Written
-// here because neither the standard library nor gonum has a radix sort, and
-// sorting is a fifth of a large propensity fit otherwise.
+// sortScoresRun sorts scores in place: by radixSort on their floatKey when
+// the run is long and holds no NaN, else by slices.Sort (sorting is a fifth
+// of a large propensity fit otherwise).
 func sortScoresRun(x []float64) {
-	if len(x) < 1<<12 {
+	if len(x) < radixSmall {
 		slices.Sort(x)
 		return
 	}
 	keys := make([]uint64, len(x))
 	for i, v := range x {
-		if !(v >= 0) { // negative or NaN
+		if v != v { // NaN
 			slices.Sort(x)
 			return
 		}
-		if v == 0 {
-			v = 0 // −0 as +0 (equal values; −0's bits would sort last)
-		}
-		keys[i] = math.Float64bits(v)
+		keys[i] = floatKey(v)
 	}
-	const bits, digits = 11, 6
-	const buckets = 1 << bits
-	var count [digits][buckets]int
-	for _, k := range keys {
-		for d := 0; d < digits; d++ {
-			count[d][(k>>(d*bits))&(buckets-1)]++
-		}
-	}
-	tmp := make([]uint64, len(keys))
-	src, dst := keys, tmp
-	for d := 0; d < digits; d++ {
-		c := &count[d]
-		if c[(src[0]>>(d*bits))&(buckets-1)] == len(src) {
-			continue // every key has this digit
-		}
-		sum := 0
-		for b := range c {
-			c[b], sum = sum, sum+c[b]
-		}
-		for _, k := range src {
-			b := (k >> (d * bits)) & (buckets - 1)
-			dst[c[b]] = k
-			c[b]++
-		}
-		src, dst = dst, src
-	}
-	for i, k := range src {
-		x[i] = math.Float64frombits(k)
+	keys, _ = radixSort(keys, nil, nil, nil)
+	for i, k := range keys {
+		x[i] = keyFloat(k)
 	}
 }
 

@@ -28,6 +28,10 @@ type Study struct {
 	asCategory   map[string]bool
 	dropIncomp   bool
 	err          error
+	// fingerprint names the data when they came through the columnar cache
+	// (LoadCached), and fitDir is where fits of them keep their coefficients
+	// ("" for neither).
+	fingerprint, fitDir string
 
 	once sync.Once
 	prep *Design
@@ -79,7 +83,7 @@ func (s *Study) clone() *Study {
 	}
 	c := &Study{src: s.src, file: s.file, treat: s.treat, treatedLevel: s.treatedLevel,
 		outcome: s.outcome, covariates: append([]string(nil), s.covariates...),
-		dropIncomp: s.dropIncomp, err: s.err, asCategory: map[string]bool{}}
+		dropIncomp: s.dropIncomp, err: s.err, asCategory: map[string]bool{}, fingerprint: s.fingerprint, fitDir: s.fitDir}
 	for k, v := range s.asCategory {
 		c.asCategory[k] = v
 	}
@@ -392,17 +396,10 @@ func (s *Study) resolve() (*Design, error) {
 	}
 	var numeric []numTerm
 	var indicators []indicator
-	for _, c := range covs {
+	ranges := numericRanges(covs, rows)
+	for ci, c := range covs {
 		if c.Kind == Numeric {
-			lo, hi := math.Inf(1), math.Inf(-1)
-			bin := true
-			for _, i := range rows {
-				v := c.Num[i]
-				lo, hi = math.Min(lo, v), math.Max(hi, v)
-				if v != 0 && v != 1 {
-					bin = false
-				}
-			}
+			lo, hi, bin := ranges[ci].lo, ranges[ci].hi, ranges[ci].binary
 			if lo == hi {
 				return nil, fmt.Errorf("covariate %q is constant (every used row is %g): it carries no information; remove it from Adjust", c.Name, lo)
 			}
@@ -449,22 +446,59 @@ func (s *Study) resolve() (*Design, error) {
 	}
 	// One write per covariate and row: the work is linear in the levels.
 	d.X = make([]float64, d.N*d.P)
-	for k, i := range rows {
-		row := d.X[k*d.P : (k+1)*d.P]
-		row[0] = 1
-		for _, nt := range numeric {
-			row[nt.term] = nt.col.Num[i]
-		}
-		for _, ind := range indicators {
-			if j := ind.term[ind.col.Codes[i]]; j > 0 {
-				row[j] = 1
+	parallelChunks(d.N, func(_, lo, hi int) {
+		for k := lo; k < hi; k++ {
+			i := rows[k]
+			row := d.X[k*d.P : (k+1)*d.P]
+			row[0] = 1
+			for _, nt := range numeric {
+				row[nt.term] = nt.col.Num[i]
+			}
+			for _, ind := range indicators {
+				if j := ind.term[ind.col.Codes[i]]; j > 0 {
+					row[j] = 1
+				}
 			}
 		}
-	}
+	})
 	if err := checkRank(d); err != nil {
 		return nil, err
 	}
 	return d, nil
+}
+
+// colRange is the range of a numeric column over the rows used and whether
+// every value there is 0 or 1.
+type colRange struct {
+	lo, hi float64
+	binary bool
+}
+
+// numericRanges computes colRange for the numeric columns of covs (the
+// others are left zero), columns in parallel.
+func numericRanges(covs []*Column, rows []int) []colRange {
+	out := make([]colRange, len(covs))
+	parallelColumns(len(covs), columnWorkers(len(covs), 1, 1), func(_, k int) {
+		c := covs[k]
+		if c.Kind != Numeric {
+			return
+		}
+		r := colRange{lo: math.Inf(1), hi: math.Inf(-1), binary: true}
+		for _, i := range rows {
+			v := c.Num[i] // never NaN: incomplete rows are not used
+			if v < r.lo {
+				r.lo = v
+			}
+			if v > r.hi {
+				r.hi = v
+			}
+			if r.binary && v != 0 && v != 1 {
+				r.binary = false
+			}
+		}
+		out[k] = r
+	})
+	return out
 }
 
 func (s *Study) column(name, role string) (*Column, error) {

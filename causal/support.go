@@ -143,22 +143,11 @@ func profile(d *Design, mask []bool) []ProfileRow { return profileAmong(d, mask,
 // profileAmong is profile restricted to the rows flagged in among (all rows
 // when among is nil): the flagged rows against the other rows of among.
 func profileAmong(d *Design, mask, among []bool) []ProfileRow {
+	mean, variance := splitMoments(d, mask, among)
 	var out []ProfileRow
 	for j := 1; j < d.P; j++ {
-		var a, b []float64
-		for i := 0; i < d.N; i++ {
-			if among != nil && !among[i] {
-				continue
-			}
-			v := d.X[i*d.P+j]
-			if mask[i] {
-				a = append(a, v)
-			} else {
-				b = append(b, v)
-			}
-		}
-		ma, va := meanVar(a, nil)
-		mb, vb := meanVar(b, nil)
+		ma, mb := mean[0][j], mean[1][j]
+		va, vb := variance[0][j], variance[1][j]
 		r := ProfileRow{Term: d.Terms[j].Name, MeanOutside: ma, MeanInside: mb}
 		if d.Terms[j].Binary {
 			va, vb = ma*(1-ma), mb*(1-mb)
@@ -167,6 +156,88 @@ func profileAmong(d *Design, mask, among []bool) []ProfileRow {
 		out = append(out, r)
 	}
 	return out
+}
+
+// splitMoments returns the mean and variance (n − 1 denominator; NaN for
+// fewer than two rows, the mean NaN for none) of every design column in
+// the rows flagged in mask (index 0) and the others (index 1), among the
+// rows flagged in among (nil: all rows): two passes
+// over blocks of rows in parallel (chunking: blocks fixed by n), partial
+// sums reduced in block order, so results do not depend on the cores.
+func splitMoments(d *Design, mask, among []bool) (mean, variance [2][]float64) {
+	n, p := d.N, d.P
+	_, count := chunking(n)
+	parts := make([][]float64, count) // per block: [group][count, sums of p columns]
+	parallelChunks(n, func(k, lo, hi int) {
+		acc := make([]float64, 2*(p+1))
+		for i := lo; i < hi; i++ {
+			if among != nil && !among[i] {
+				continue
+			}
+			g := acc[(p + 1):]
+			if mask[i] {
+				g = acc[:p+1]
+			}
+			g[0]++
+			row := d.X[i*p : (i+1)*p]
+			for j, v := range row {
+				g[1+j] += v
+			}
+		}
+		parts[k] = acc
+	})
+	var cnt [2]float64
+	for g := 0; g < 2; g++ {
+		mean[g], variance[g] = make([]float64, p), make([]float64, p)
+	}
+	for _, acc := range parts {
+		for g := 0; g < 2; g++ {
+			a := acc[g*(p+1):]
+			cnt[g] += a[0]
+			for j := 0; j < p; j++ {
+				mean[g][j] += a[1+j]
+			}
+		}
+	}
+	for g := 0; g < 2; g++ {
+		for j := range mean[g] {
+			mean[g][j] /= cnt[g] // NaN when the group is empty
+		}
+	}
+	parallelChunks(n, func(k, lo, hi int) {
+		acc := parts[k][:2*p]
+		clear(acc)
+		for i := lo; i < hi; i++ {
+			if among != nil && !among[i] {
+				continue
+			}
+			g, m := acc[p:], mean[1]
+			if mask[i] {
+				g, m = acc[:p], mean[0]
+			}
+			row := d.X[i*p : (i+1)*p]
+			for j, v := range row {
+				g[j] += (v - m[j]) * (v - m[j])
+			}
+		}
+	})
+	for _, acc := range parts {
+		for g := 0; g < 2; g++ {
+			for j := 0; j < p; j++ {
+				variance[g][j] += acc[g*p+j]
+			}
+		}
+	}
+	for g := 0; g < 2; g++ {
+		for j := range variance[g] {
+			if cnt[g] > 1 {
+				variance[g][j] /= cnt[g] - 1
+			} else {
+				variance[g][j] = math.NaN()
+			}
+		}
+	}
+	return mean, variance
 }
 
 // smdValue = (m1 − m0)/sqrt((v1+v0)/2), 0 when both are equal and spread is 0.

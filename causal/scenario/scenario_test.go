@@ -22,6 +22,7 @@ var generators = []struct {
 	{"Extrapolation", func(s uint64) (*Data, error) { return Extrapolation(s, 300, 2) }},
 	{"KangSchafer", func(s uint64) (*Data, error) { return KangSchafer(s, 300) }},
 	{"RandomisedSimple", func(s uint64) (*Data, error) { return RandomisedSimple(s, 300, 1.5) }},
+	{"Wide", func(s uint64) (*Data, error) { return Wide(s, 300, 9) }},
 	{"SteepScores", func(s uint64) (*Data, error) { return SteepScores(s, 300, 2.5) }},
 }
 
@@ -125,6 +126,9 @@ func TestArgumentErrors(t *testing.T) {
 		{"ks huge", "smaller n", func() (*Data, error) { return KangSchafer(1, maxCells+1) }},
 		{"rand n", "n = 5", func() (*Data, error) { return RandomisedSimple(1, 5, 1) }},
 		{"rand ate", "ate", func() (*Data, error) { return RandomisedSimple(1, 100, math.NaN()) }},
+		{"wide n", "n = 2", func() (*Data, error) { return Wide(1, 2, 5) }},
+		{"wide p", "p = 0", func() (*Data, error) { return Wide(1, 100, 0) }},
+		{"wide n·p", "n·p", func() (*Data, error) { return Wide(1, maxCells/2, 20) }},
 		{"steep n", "n = 2", func() (*Data, error) { return SteepScores(1, 2, 2.5) }},
 		{"steep slope", "slope", func() (*Data, error) { return SteepScores(1, 100, math.Inf(-1)) }},
 	}
@@ -310,6 +314,47 @@ func TestRandomisedSimple(t *testing.T) {
 	if d.TrueATE != ate || d.TrueATT != ate {
 		t.Errorf("true effects %v, %v; want %v", d.TrueATE, d.TrueATT, ate)
 	}
+}
+
+// TestWide checks the design of the Wide scenario: every 4th covariate is
+// 0/1 with its design share, the others have mean 0 and variance 1, the
+// share treated matches the mean true propensity, and the sample ATE is
+// 1 + 0.5·mean(x1). Tolerances are 4 standard errors of each mean (binomial
+// sqrt(p(1−p)/n), normal 1/sqrt(n), variance sqrt(2/n)).
+func TestWide(t *testing.T) {
+	const n, p = 20000, 9
+	d, err := Wide(5, n, p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(d.Names) != p+2 || d.Names[p] != "t" || d.Names[p+1] != "y" {
+		t.Fatalf("columns %v", d.Names)
+	}
+	for j := 1; j <= p; j++ {
+		x := d.Num["x"+strconv.Itoa(j)]
+		m, v := stat.MeanVariance(x, nil)
+		if j%4 == 0 {
+			share := 0.2 + 0.1*float64((j/4)%4)
+			if count(x) != int(m*n+0.5) {
+				t.Errorf("x%d is not 0/1", j)
+			}
+			within(t, "share of x"+strconv.Itoa(j), m, share, 4*math.Sqrt(share*(1-share)/n))
+			continue
+		}
+		within(t, "mean of x"+strconv.Itoa(j), m, 0, 4/math.Sqrt(n))
+		within(t, "variance of x"+strconv.Itoa(j), v, 1, 4*math.Sqrt(2.0/n))
+	}
+	pm := stat.Mean(d.Truth["propensity"], nil)
+	within(t, "share treated", float64(count(d.Num["t"]))/n, pm, 4*math.Sqrt(pm*(1-pm)/n))
+	lo, hi := 1.0, 0.0
+	for _, e := range d.Truth["propensity"] {
+		lo, hi = math.Min(lo, e), math.Max(hi, e)
+	}
+	if lo < 0.02 || hi > 0.98 {
+		t.Errorf("true scores span [%.3f, %.3f]; the design keeps them inside [0.02, 0.98]", lo, hi)
+	}
+	within(t, "sample ATE", d.TrueATE, 1+0.5*stat.Mean(d.Num["x1"], nil), 1e-3) // rounding of y to 4 decimals
+	within(t, "sample ATE around the population ATE", d.TrueATE, 1, 4*0.5/math.Sqrt(n))
 }
 
 // TestSteepScoresTruth checks SteepScores against its design: the sample ATE

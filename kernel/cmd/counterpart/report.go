@@ -43,6 +43,7 @@ func reportCommand() *command {
 		htmlOut := fs.String("html", "", "write a self-contained HTML report to FILE")
 		failOn := fs.String("fail-on", "", "exit 3 when the verdict for --estimand is this bad: violated (withdrawn by a violation), or limited (not supported, or supported with caution); with --trim the trimmed units' verdict is judged")
 		dropIncomplete := fs.Bool("drop-incomplete", false, "drop rows with a missing value in a role column (counted in the report) instead of stopping")
+		verbose := fs.Bool("verbose", false, "print the time each stage took on standard error")
 		categorical := fs.String("categorical", "", "comma-separated covariates whose values are categories even where they look like numbers (e.g. region codes)")
 		delimiter := fs.String("delimiter", ",", "field separator of --data: one character such as , ; | or the word tab")
 		maxField := fs.Int("max-field", causal.DefaultMaxField, "longest field of --data accepted, in bytes")
@@ -97,9 +98,11 @@ func reportCommand() *command {
 		if *bins < 2 {
 			return fmt.Errorf("--bins %d: use 2 or more quantile bins", *bins)
 		}
-		if _, err := os.Stat(*data); err != nil {
+		fi, err := os.Stat(*data)
+		if err != nil {
 			return fmt.Errorf("--data %s: %v", *data, errors.Unwrap(err))
 		}
+		paceMemory(fi.Size())
 		var cats []string
 		if *categorical != "" {
 			if cats, err = nameList("--categorical", *categorical); err != nil {
@@ -118,13 +121,16 @@ func reportCommand() *command {
 		}
 		ctx, stop := signalContext()
 		defer stop()
-		opts := causal.ReportOptions{Estimand: est, Trim: *trim, Cells: cellCols, Bins: *bins, Caliper: cal, Bootstrap: int(*boot), Seed: *seed, Context: ctx}
+		clock := newStageClock(*verbose)
+		defer clock.finish()
+		opts := causal.ReportOptions{Estimand: est, Trim: *trim, Cells: cellCols, Bins: *bins, Caliper: cal, Bootstrap: int(*boot), Seed: *seed, Context: ctx, Stage: clock.start}
 		if *boot > 0 {
 			update, finish := kernel.Progress("bootstrap")
 			opts.Progress = update
 			defer finish()
 		}
 		r, err := buildInterruptible(ctx, *partial, func() (*causal.Report, error) {
+			clock.start("reading")
 			s := causal.LoadWith(*data, causal.ReadOptions{Delimiter: delim, MaxField: *maxField}).Treat(*treatment).Outcome(*outcome).Adjust(covs...)
 			if *treatedLevel != "" {
 				s = s.TreatedLevel(*treatedLevel)
@@ -140,6 +146,7 @@ func reportCommand() *command {
 		if err != nil {
 			return err
 		}
+		clock.start("writing")
 		outs, err := reportOutputs(r, *jsonOut, *htmlOut)
 		if err != nil {
 			return err
