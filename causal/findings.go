@@ -225,7 +225,10 @@ func screenedGroups(d *Design) int {
 // with the same arm sizes gives with probability chanceMissing(r, n, n_a)
 // (the top r units are a random r-subset). Below SeparationAlpha/G for the G
 // groups of the separation screen (Bonferroni) it is a violation for the
-// estimands that need the missing arm there.
+// estimands that need the missing arm there — when the r units are at least
+// MinShare of their arm; fewer are a note (in a large sample a handful of
+// units at the far end of a covariate that predicts treatment is beyond
+// chance but changes no estimate).
 func tailFindings(j *judge) []Finding {
 	d := j.d
 	var out []Finding
@@ -297,6 +300,10 @@ func tailFindings(j *judge) []Finding {
 			}
 			f.Text = fmt.Sprintf("%s: the %d %s beyond the %s %s value form a one-arm range that random assignment with these arm sizes gives with probability %.2g (p = %.2g after Bonferroni over %d groups): treatment is deterministic there",
 				c.Name, r, arm, edge, other, p, float64(f.PValue), groups)
+			if armN := d.Treated + d.Control - missing; float64(r) < j.o.MinShare*float64(armN) {
+				f.Effect, f.Violation = Informs, false
+				f.Text += fmt.Sprintf(", but they are %.2f%% of their arm, below %.0f%%: too few units to change the verdict", 100*float64(r)/float64(armN), 100*j.o.MinShare)
+			}
 			out = append(out, f)
 		}
 	}

@@ -62,7 +62,8 @@ type VerdictOptions struct {
 	Extreme float64
 	// MinShare: a permutation-calibrated rule fires only when the units in
 	// excess of chance are at least this share of the arm (and at least one
-	// unit). Default 0.01 (common practice, no source).
+	// unit); the covariate-tail rule only when its one-arm range holds at
+	// least this share of its arm. Default 0.01 (common practice, no source).
 	MinShare float64
 	// MaxInflation: variance inflation (against a randomised design of the
 	// same size) at which precision becomes a caution, when beyond chance.
