@@ -13,7 +13,7 @@ import (
 const z975 = 1.959963984540054
 
 // Estimator identifies an effect estimator. Its String is the id used in
-// every output (DESIGN.md): difference_in_means, regression_adjustment, ipw,
+// every output (the report JSON contract, README.md and causal/report.schema.json): difference_in_means, regression_adjustment, ipw,
 // ipw_normalized, aipw, overlap_weighted. The zero value is not an estimator.
 //
 // Notation: T ∈ {0, 1} treatment, y outcome, e = e(x) the fitted propensity

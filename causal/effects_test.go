@@ -290,7 +290,7 @@ func TestEffectJSON(t *testing.T) {
 	if len(got) != 5 {
 		t.Fatalf("%d entries", len(got))
 	}
-	// Field names of DESIGN.md's report "estimates" entries.
+	// Field names of the report's "estimates" entries (causal/report.schema.json).
 	for _, k := range []string{"estimator", "estimand", "value", "se", "ci95", "se_method", "n"} {
 		if _, ok := got[0][k]; !ok {
 			t.Errorf("field %q missing in %s", k, b)

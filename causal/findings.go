@@ -483,13 +483,7 @@ func sparseCellFindings(j *judge) []Finding {
 			}
 			what := fmt.Sprintf("positivity cells (%s): %.0f %s (%.1f%% of the arm) are in cells with fewer than %d %s; random assignment with these arm sizes gives %.1f on average (p = %.3g, %s)",
 				cols, obs, arm, 100*obs/float64(armN), c.Options.Thin, other, exp, p, "family-wise")
-			if j.beyond(k, armN) {
-				f.Effect, f.Estimands = Caution, armEstimands(treatedArm)
-				f.Text = what + ": their comparisons rest on a handful of " + other
-			} else {
-				f.Effect, f.Estimands = Informs, []string{}
-				f.Text = what + ": " + j.withinChance(k)
-			}
+			j.settle(&f, k, armN, treatedArm, Caution, what, "their comparisons rest on a handful of "+other)
 			out = append(out, f)
 		}
 	}
@@ -537,13 +531,7 @@ func supportFindings(j *judge) []Finding {
 		}
 		what := fmt.Sprintf("%.0f %s (%.1f%% of the arm) have scores outside the %s' range [%.3f, %.3f]; random assignment with these arm sizes gives %.1f on average (p = %.3g, family-wise)",
 			obs, arm, 100*obs/float64(armN), other, rng.Lo, rng.Hi, exp, p)
-		if j.beyond(k, armN) {
-			f.Effect, f.Estimands = Withdraws, armEstimands(treatedArm)
-			f.Text = what + ": they have no comparable " + other
-		} else {
-			f.Effect, f.Estimands = Informs, []string{}
-			f.Text = what + ": " + j.withinChance(k)
-		}
+		j.settle(&f, k, armN, treatedArm, Withdraws, what, "they have no comparable "+other)
 		out = append(out, f)
 	}
 	return out
@@ -639,6 +627,19 @@ func precisionFindings(j *judge) []Finding {
 		out = append(out, f)
 	}
 	return out
+}
+
+// settle gives a permutation-calibrated finding its effect and text: beyond
+// chance (judge.beyond) it has effect on the estimands of the arm and says
+// consequence; otherwise it informs and says why it changes nothing.
+func (j *judge) settle(f *Finding, k, armN int, treatedArm bool, effect FindingEffect, what, consequence string) {
+	if j.beyond(k, armN) {
+		f.Effect, f.Estimands = effect, armEstimands(treatedArm)
+		f.Text = what + ": " + consequence
+		return
+	}
+	f.Effect, f.Estimands = Informs, []string{}
+	f.Text = what + ": " + j.withinChance(k)
 }
 
 // withinChance says why a permutation statistic that fired no rule did not:
