@@ -5,9 +5,8 @@ import (
 	"math/rand/v2"
 	"runtime"
 	"sort"
-	"sync"
-	"sync/atomic"
 
+	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/mat"
 )
 
@@ -161,20 +160,45 @@ type permResult struct {
 // close to the null one and a few steps converge (to about 1e-4 on the
 // logit scale; at most 10 are taken: a permutation that separates a level
 // stops there, with scores near 0 or 1 as the observed fit has).
+//
+// The centred columns are never stored: blocks of permSub rows of the
+// design are gathered, transposed, into a small buffer, and a batch of
+// permutations shares each pass over the design (Xᵀ(t − e) as unit-stride
+// dot products, Xβ as axpy updates; gonum's floats, SIMD). Centring enters
+// through the means: Xcᵀr = Xᵀr − m Σr and Xcβ = Xβ − mᵀβ. Row blocks follow
+// chunking and are reduced in block order, so every permutation's scores
+// are the same on any number of cores and in any batch.
 type nullFit struct {
-	n, q int
-	xc   []float64 // n × q centred columns
+	d    *Design
+	free []int     // the free units (rows of the design)
+	n, q int       // free units; varying columns
+	cols []int     // design columns that vary among the free units
+	mean []float64 // their means over the free units
 	sd   []float64 // their standard deviations (convergence scale)
-	csum []float64 // their column sums (0 up to rounding)
 	chol mat.Cholesky
 	pi   float64
 	ok   bool
 }
 
+// permSub is the number of rows gathered and transposed at a time.
+const permSub = 256
+
+// gather writes the values of columns cols of free units lo … lo+m−1,
+// transposed: bt[a·permSub + r] is column a of unit lo + r.
+func (nf *nullFit) gather(bt []float64, lo, m int) {
+	P := nf.d.P
+	for r := 0; r < m; r++ {
+		i := nf.free[lo+r] * P
+		row := nf.d.X[i : i+P]
+		for a, j := range nf.cols {
+			bt[a*permSub+r] = row[j]
+		}
+	}
+}
+
 func newNullFit(d *Design, free []int, pi float64) *nullFit {
-	nf := &nullFit{n: len(free), pi: pi}
-	var cols []int
-	means := make([]float64, d.P)
+	nf := &nullFit{d: d, free: free, n: len(free), pi: pi}
+	nf.mean = make([]float64, 0, d.P)
 	for j := 1; j < d.P; j++ {
 		var s, s2 float64
 		for _, i := range free {
@@ -183,47 +207,51 @@ func newNullFit(d *Design, free []int, pi float64) *nullFit {
 			s2 += v * v
 		}
 		m := s / float64(len(free))
-		means[j] = m
 		if s2/float64(len(free))-m*m > 1e-12*(1+m*m) {
-			cols = append(cols, j)
+			nf.cols = append(nf.cols, j)
+			nf.mean = append(nf.mean, m)
 		}
 	}
-	nf.q = len(cols)
-	if nf.q == 0 {
+	nf.q = len(nf.cols)
+	q := nf.q
+	if q == 0 {
 		nf.ok = true
 		return nf
 	}
-	nf.xc = make([]float64, nf.n*nf.q)
-	nf.sd = make([]float64, nf.q)
-	for r, i := range free {
-		row := d.X[i*d.P : (i+1)*d.P]
-		for a, j := range cols {
-			nf.xc[r*nf.q+a] = row[j] - means[j]
-		}
-	}
-	q := nf.q
-	A := mat.NewSymDense(q, nil)
-	acc := make([]float64, q*q)
-	for r := 0; r < nf.n; r++ {
-		x := nf.xc[r*q : (r+1)*q]
-		for a := 0; a < q; a++ {
-			xa := x[a]
-			for b := a; b < q; b++ {
-				acc[a*q+b] += xa * x[b]
+	// Centred cross products over row blocks, reduced in block order.
+	_, count := chunking(nf.n)
+	parts := make([][]float64, count)
+	parallelChunks(nf.n, func(c, lo, hi int) {
+		acc := make([]float64, q*q)
+		btp := getScratch(q * permSub)
+		defer scratch.Put(btp)
+		bt := *btp
+		for s := lo; s < hi; s += permSub {
+			m := min(permSub, hi-s)
+			nf.gather(bt, s, m)
+			for a := 0; a < q; a++ {
+				floats.AddConst(-nf.mean[a], bt[a*permSub:a*permSub+m])
+			}
+			for a := 0; a < q; a++ {
+				ba := bt[a*permSub : a*permSub+m]
+				for b := a; b < q; b++ {
+					acc[a*q+b] += floats.Dot(ba, bt[b*permSub:b*permSub+m])
+				}
 			}
 		}
+		parts[c] = acc
+	})
+	acc := make([]float64, q*q)
+	for _, pa := range parts {
+		floats.Add(acc, pa)
 	}
-	nf.csum = make([]float64, q)
-	for r := 0; r < nf.n; r++ {
-		for a, v := range nf.xc[r*q : (r+1)*q] {
-			nf.csum[a] += v
-		}
-	}
+	nf.sd = make([]float64, q)
 	var tr float64
 	for a := 0; a < q; a++ {
 		tr += acc[a*q+a]
 		nf.sd[a] = math.Sqrt(acc[a*q+a] / float64(nf.n))
 	}
+	A := mat.NewSymDense(q, nil)
 	for jit := 0.0; jit < 1; jit = math.Max(1e-10, jit*100) {
 		for a := 0; a < q; a++ {
 			for b := a; b < q; b++ {
@@ -242,78 +270,145 @@ func newNullFit(d *Design, free []int, pi float64) *nullFit {
 	return nf
 }
 
-// scores writes the refitted scores for treatment t (free units) into e;
-// g and beta are scratch of length q.
-func (nf *nullFit) scores(t, e []float64, g []float64) {
-	q := nf.q
+// scores writes the refitted scores for each treatment ts[k] (over the free
+// units) into es[k]. Each permutation iterates on its own and stops when it
+// has converged; the batch only shares the passes over the design.
+func (nf *nullFit) scores(ts, es [][]float64) {
+	K, q := len(ts), nf.q
 	w0 := nf.pi * (1 - nf.pi)
-	b0 := math.Log(nf.pi / (1 - nf.pi))
-	for i := range e {
-		e[i] = nf.pi
+	b0 := make([]float64, K)
+	for k := range es {
+		for i := range es[k] {
+			es[k][i] = nf.pi
+		}
+		b0[k] = math.Log(nf.pi / (1 - nf.pi))
 	}
 	if q == 0 || !nf.ok {
 		return
 	}
-	beta := make([]float64, q)
-	gv := mat.NewVecDense(q, g)
+	beta := make([]float64, K*q)
+	active := make([]bool, K)
+	for k := range active {
+		active[k] = true
+	}
+	_, count := chunking(nf.n)
+	parts := make([][]float64, count)
+	g := make([]float64, K*(q+1))
+	gc := mat.NewVecDense(q, nil)
 	var step mat.VecDense
 	for it := 0; it < 10; it++ {
-		for a := range g {
-			g[a] = 0
+		// Xᵀ(t − e) and Σ(t − e) for every active permutation.
+		parallelChunks(nf.n, func(c, lo, hi int) {
+			acc := parts[c]
+			if acc == nil {
+				acc = make([]float64, K*(q+1))
+				parts[c] = acc
+			}
+			for i := range acc {
+				acc[i] = 0
+			}
+			btp, rp := getScratch(q*permSub), getScratch(permSub)
+			defer scratch.Put(btp)
+			defer scratch.Put(rp)
+			bt, res := *btp, *rp
+			for s := lo; s < hi; s += permSub {
+				m := min(permSub, hi-s)
+				nf.gather(bt, s, m)
+				for k := 0; k < K; k++ {
+					if !active[k] {
+						continue
+					}
+					t, e, r := ts[k][s:s+m], es[k][s:s+m], res[:m]
+					floats.SubTo(r, t, e)
+					gk := acc[k*(q+1) : (k+1)*(q+1)]
+					for a := 0; a < q; a++ {
+						gk[a] += floats.Dot(bt[a*permSub:a*permSub+m], r)
+					}
+					gk[q] += floats.Sum(r)
+				}
+			}
+		})
+		for i := range g {
+			g[i] = 0
 		}
-		var g0 float64
-		if it == 0 {
-			// e = π everywhere: Σ x(t − π) = Σ_{t=1} x − π Σ x, a sum over
-			// the treated rows only, and Σ (t − π) = n₁ − nπ.
-			var n1 float64
-			for r := 0; r < nf.n; r++ {
-				if t[r] == 1 {
-					n1++
-					for a, v := range nf.xc[r*q : (r+1)*q] {
-						g[a] += v
+		for _, pa := range parts {
+			floats.Add(g, pa)
+		}
+		// One chord step each; those whose step is small stop after it.
+		moved, last := make([]bool, K), make([]bool, K)
+		any := false
+		for k := 0; k < K; k++ {
+			if !active[k] {
+				continue
+			}
+			gk := g[k*(q+1) : (k+1)*(q+1)]
+			g0 := gk[q]
+			for a := 0; a < q; a++ {
+				gc.SetVec(a, gk[a]-nf.mean[a]*g0)
+			}
+			if err := nf.chol.SolveVecTo(&step, gc); err != nil {
+				active[k] = false
+				continue
+			}
+			d0 := g0 / (float64(nf.n) * w0)
+			b0[k] += d0
+			big := math.Abs(d0)
+			bk := beta[k*q : (k+1)*q]
+			for a, v := range step.RawVector().Data {
+				dv := v / w0
+				bk[a] += dv
+				big = math.Max(big, math.Abs(dv)*nf.sd[a])
+			}
+			moved[k], any = true, true
+			// The chord iteration contracts by a factor of order |β|
+			// near the null, so the error left after a step of size δ
+			// is of order δ²: δ < 1e-2 leaves about 1e-4 on the logit
+			// scale (2.5e-5 or less on the score scale), far below what
+			// the count statistics resolve; at n = 1e6 one step reaches
+			// it.
+			last[k] = big < 1e-2
+		}
+		if !any {
+			return
+		}
+		// e = σ(b₀ − mᵀβ + Xβ) for the permutations that moved.
+		c0 := make([]float64, K)
+		for k := 0; k < K; k++ {
+			c0[k] = b0[k] - floats.Dot(nf.mean, beta[k*q:(k+1)*q])
+		}
+		parallelChunks(nf.n, func(c, lo, hi int) {
+			btp, ep := getScratch(q*permSub), getScratch(permSub)
+			defer scratch.Put(btp)
+			defer scratch.Put(ep)
+			bt, eta := *btp, *ep
+			for s := lo; s < hi; s += permSub {
+				m := min(permSub, hi-s)
+				nf.gather(bt, s, m)
+				for k := 0; k < K; k++ {
+					if !moved[k] {
+						continue
+					}
+					et := eta[:m]
+					for r := range et {
+						et[r] = c0[k]
+					}
+					for a, b := range beta[k*q : (k+1)*q] {
+						floats.AddScaled(et, b, bt[a*permSub:a*permSub+m])
+					}
+					e := es[k][s : s+m]
+					for r, v := range et {
+						e[r] = sigmoid(v)
 					}
 				}
 			}
-			for a := range g {
-				g[a] -= nf.pi * nf.csum[a]
+		})
+		for k := range active {
+			if moved[k] && last[k] {
+				active[k] = false
 			}
-			g0 = n1 - float64(nf.n)*nf.pi
-		} else {
-			for r := 0; r < nf.n; r++ {
-				res := t[r] - e[r]
-				g0 += res
-				x := nf.xc[r*q : (r+1)*q]
-				for a := range g {
-					g[a] += x[a] * res
-				}
+			if !moved[k] {
+				active[k] = false
 			}
-		}
-		if err := nf.chol.SolveVecTo(&step, gv); err != nil {
-			return
-		}
-		d0 := g0 / (float64(nf.n) * w0)
-		b0 += d0
-		big := math.Abs(d0)
-		for a, v := range step.RawVector().Data {
-			dv := v / w0
-			beta[a] += dv
-			big = math.Max(big, math.Abs(dv)*nf.sd[a])
-		}
-		for r := 0; r < nf.n; r++ {
-			x := nf.xc[r*q : (r+1)*q]
-			eta := b0
-			for a, b := range beta {
-				eta += x[a] * b
-			}
-			e[r] = sigmoid(eta)
-		}
-		// The chord iteration contracts by a factor of order |β| near the
-		// null, so the error left after a step of size δ is of order δ²:
-		// δ < 1e-2 leaves about 1e-4 on the logit scale (2.5e-5 or less on
-		// the score scale), far below what the count statistics resolve;
-		// at n = 1e6 one step reaches it.
-		if big < 1e-2 {
-			return
 		}
 	}
 }
@@ -323,6 +418,27 @@ func (nf *nullFit) scores(t, e []float64, g []float64) {
 // spread over cores.
 func permRand(seed uint64, b int) *rand.Rand {
 	return rand.New(rand.NewPCG(seed, 0x7065726d75746573^uint64(b)))
+}
+
+// permuteArms fills t with a uniformly random assignment of n1 treated
+// units among len(t), every one of the C(n, n1) subsets equally likely: the
+// distribution of a random permutation of a 0/1 treatment with n1 ones.
+// Selection sampling (Fan, Muller & Rezucha 1962; Knuth, TAOCP Vol. 2,
+// §3.4.2, Algorithm S): unit i is treated with probability (treated still
+// to place)/(units left). One pass in order, one random number per unit and
+// no random memory access, where a Fisher–Yates shuffle of the vector swaps
+// at random places.
+func permuteArms(t []float64, n1 int, r *rand.Rand) {
+	need, left := uint64(n1), uint64(len(t))
+	for i := range t {
+		if r.Uint64N(left) < need {
+			t[i] = 1
+			need--
+		} else {
+			t[i] = 0
+		}
+		left--
+	}
 }
 
 // permutationNull computes the statistics on the observed treatment (with
@@ -367,40 +483,32 @@ func permutationNull(d *Design, free []int, eObs []float64, stats []permStat, B 
 		vals[k] = make([]float64, B+1)
 		vals[k][0] = res.observed[k]
 	}
-	// Permutations are taken by the workers one at a time; permutation b's
-	// generator and slot depend on b only, so the result does not depend on
-	// the number of workers.
-	workers := min(B, runtime.GOMAXPROCS(0))
-	var next atomic.Int64
-	var wg sync.WaitGroup
-	for c := 0; c < workers; c++ {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			t := make([]float64, n)
-			e := make([]float64, n)
-			g := make([]float64, nf.q)
-			var sum scoreSummary
-			for {
-				b := int(next.Add(1)) - 1
-				if b >= B {
-					return
-				}
-				copy(t, tObs)
-				r := permRand(seed, b)
-				for i := n - 1; i > 0; i-- {
-					j := r.IntN(i + 1)
-					t[i], t[j] = t[j], t[i]
-				}
-				nf.scores(t, e, g)
-				summarise(t, e, eps, &sum)
-				for k, s := range stats {
-					vals[k][b+1] = s.fn(t, e, &sum)
-				}
-			}
-		}()
+	// Permutations go in batches that share each pass over the design
+	// (as many as 128 MB of treatments and scores allow, at most 8); the
+	// row blocks of a pass and the statistics of a batch are spread over
+	// the cores. Permutation b's generator and slot depend on b only, and
+	// its scores on its own treatment only, so the result depends neither
+	// on the number of cores nor on the batch size.
+	batch := max(1, min(8, B, (128<<20)/(16*max(1, n))))
+	ts, es := make([][]float64, batch), make([][]float64, batch)
+	for k := range ts {
+		ts[k], es[k] = make([]float64, n), make([]float64, n)
 	}
-	wg.Wait()
+	workers := runtime.GOMAXPROCS(0)
+	sums := make([]scoreSummary, batch)
+	for lo := 0; lo < B; lo += batch {
+		m := min(batch, B-lo)
+		parallelColumns(m, min(workers, m), func(_, k int) {
+			permuteArms(ts[k], int(n1), permRand(seed, lo+k))
+		})
+		nf.scores(ts[:m], es[:m])
+		parallelColumns(m, min(workers, m), func(_, k int) {
+			summarise(ts[k], es[k], eps, &sums[k])
+			for j, s := range stats {
+				vals[j][lo+k+1] = s.fn(ts[k], es[k], &sums[k])
+			}
+		})
+	}
 	// p_k(b): share of the B+1 values ≥ value b.
 	pk := make([][]float64, K)
 	for k := range vals {

@@ -80,10 +80,10 @@ func ExampleVerdict_String() {
 	//   ATC  supported               ESS 160.8 treated / 260.0 control, largest weight 1.2% of its arm, variance ×1.09
 	//   ATO  supported               ESS 179.8 treated / 246.6 control, largest weight 0.7% of its arm, variance ×1.04
 	//   note: positivity cells (black × hisp × married × nodegr): 1 small cells lack an arm (2 treated, 0 controls in them), as random assignment with these arm sizes often gives at their size: not a violation
-	//   note: positivity cells (black × hisp × married × nodegr): 7 treated units (3.8% of the arm) are in cells with fewer than 5 controls; random assignment with these arm sizes gives 6.2 on average (p = 0.88, family-wise): as chance gives
-	//   note: positivity cells (black × hisp × married × nodegr): 6 controls (2.3% of the arm) are in cells with fewer than 5 treated units; random assignment with these arm sizes gives 13.0 on average (p = 1, family-wise): as chance gives
-	//   note: 4 treated units (2.2% of the arm) have scores outside the controls' range [0.195, 0.643]; random assignment with these arm sizes gives 2.0 on average (p = 0.72, family-wise): as chance gives
-	//   note: 11 controls (4.2% of the arm) have scores outside the treated units' range [0.238, 0.676]; random assignment with these arm sizes gives 3.6 on average (p = 0.26, family-wise): as chance gives
+	//   note: positivity cells (black × hisp × married × nodegr): 7 treated units (3.8% of the arm) are in cells with fewer than 5 controls; random assignment with these arm sizes gives 6.1 on average (p = 0.805, family-wise): as chance gives
+	//   note: positivity cells (black × hisp × married × nodegr): 6 controls (2.3% of the arm) are in cells with fewer than 5 treated units; random assignment with these arm sizes gives 13.7 on average (p = 1, family-wise): as chance gives
+	//   note: 4 treated units (2.2% of the arm) have scores outside the controls' range [0.195, 0.643]; random assignment with these arm sizes gives 1.8 on average (p = 0.55, family-wise): as chance gives
+	//   note: 11 controls (4.2% of the arm) have scores outside the treated units' range [0.238, 0.676]; random assignment with these arm sizes gives 3.8 on average (p = 0.325, family-wise): as chance gives
 	//   estimands the data support: ATE, ATT, ATC, ATO
 	//   remedy: none needed for positivity: the ATE is supported on these covariates (check balance after weighting)
 	//   These diagnostics cannot verify unconfoundedness; estimates depend on the covariates measured.

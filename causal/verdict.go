@@ -69,12 +69,22 @@ type VerdictOptions struct {
 	// same size) at which precision becomes a caution, when beyond chance.
 	// Default 2, an effective sample size halved (common practice, no source).
 	MaxInflation float64
-	// Permutations of the treatment for the chance calibration (default
-	// 99: the smallest adjusted p-value is then 0.01, below the default
-	// Alpha) and their seed (default 1).
+	// Permutations of the treatment for the chance calibration and their
+	// seed (default 1). Default 199, or 99 when the design has more than
+	// largePermDesign entries (rows × covariate columns), where each refit
+	// costs. The smallest adjusted p-value is 1/(B + 1); with the single-step
+	// minP adjustment one permutation that beats the observed data in any
+	// statistic of the family adds 1/(B + 1) to every adjusted p-value, so
+	// at B = 99 two such permutations out of 99 lift a finding that beats
+	// them all in its own statistic above the default Alpha; at B = 199 it
+	// takes four.
 	Permutations int
 	Seed         uint64
 }
+
+// largePermDesign is the design size (rows × covariate columns) above
+// which the verdict's permutation null takes 99 permutations instead of 199.
+const largePermDesign = 4_000_000
 
 // validate rejects thresholds that cannot mean anything. Zero means the
 // default.
@@ -135,7 +145,10 @@ func (sc *Scores) verdictDefaults(o VerdictOptions) VerdictOptions {
 		o.MaxInflation = 2
 	}
 	if o.Permutations == 0 {
-		o.Permutations = 99
+		o.Permutations = 199
+		if d := sc.Design; d != nil && d.N*(d.P-1) > largePermDesign {
+			o.Permutations = 99
+		}
 	}
 	if o.Seed == 0 {
 		o.Seed = 1
