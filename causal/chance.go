@@ -196,6 +196,20 @@ func (nf *nullFit) gather(bt []float64, lo, m int) {
 	}
 }
 
+// blocks runs fn over the free units lo … hi−1, permSub at a time, with
+// their columns gathered and transposed into bt (see gather) and a scratch
+// vector v of permSub entries.
+func (nf *nullFit) blocks(lo, hi int, fn func(s, m int, bt, v []float64)) {
+	btp, vp := getScratch(nf.q*permSub), getScratch(permSub)
+	defer scratch.Put(btp)
+	defer scratch.Put(vp)
+	for s := lo; s < hi; s += permSub {
+		m := min(permSub, hi-s)
+		nf.gather(*btp, s, m)
+		fn(s, m, *btp, (*vp)[:m])
+	}
+}
+
 func newNullFit(d *Design, free []int, pi float64) *nullFit {
 	nf := &nullFit{d: d, free: free, n: len(free), pi: pi}
 	nf.mean = make([]float64, 0, d.P)
@@ -223,12 +237,7 @@ func newNullFit(d *Design, free []int, pi float64) *nullFit {
 	parts := make([][]float64, count)
 	parallelChunks(nf.n, func(c, lo, hi int) {
 		acc := make([]float64, q*q)
-		btp := getScratch(q * permSub)
-		defer scratch.Put(btp)
-		bt := *btp
-		for s := lo; s < hi; s += permSub {
-			m := min(permSub, hi-s)
-			nf.gather(bt, s, m)
+		nf.blocks(lo, hi, func(_, m int, bt, _ []float64) {
 			for a := 0; a < q; a++ {
 				floats.AddConst(-nf.mean[a], bt[a*permSub:a*permSub+m])
 			}
@@ -238,7 +247,7 @@ func newNullFit(d *Design, free []int, pi float64) *nullFit {
 					acc[a*q+b] += floats.Dot(ba, bt[b*permSub:b*permSub+m])
 				}
 			}
-		}
+		})
 		parts[c] = acc
 	})
 	acc := make([]float64, q*q)
@@ -307,26 +316,19 @@ func (nf *nullFit) scores(ts, es [][]float64) {
 			for i := range acc {
 				acc[i] = 0
 			}
-			btp, rp := getScratch(q*permSub), getScratch(permSub)
-			defer scratch.Put(btp)
-			defer scratch.Put(rp)
-			bt, res := *btp, *rp
-			for s := lo; s < hi; s += permSub {
-				m := min(permSub, hi-s)
-				nf.gather(bt, s, m)
+			nf.blocks(lo, hi, func(s, m int, bt, r []float64) {
 				for k := 0; k < K; k++ {
 					if !active[k] {
 						continue
 					}
-					t, e, r := ts[k][s:s+m], es[k][s:s+m], res[:m]
-					floats.SubTo(r, t, e)
+					floats.SubTo(r, ts[k][s:s+m], es[k][s:s+m])
 					gk := acc[k*(q+1) : (k+1)*(q+1)]
 					for a := 0; a < q; a++ {
 						gk[a] += floats.Dot(bt[a*permSub:a*permSub+m], r)
 					}
 					gk[q] += floats.Sum(r)
 				}
-			}
+			})
 		})
 		for i := range g {
 			g[i] = 0
@@ -377,30 +379,23 @@ func (nf *nullFit) scores(ts, es [][]float64) {
 			c0[k] = b0[k] - floats.Dot(nf.mean, beta[k*q:(k+1)*q])
 		}
 		parallelChunks(nf.n, func(c, lo, hi int) {
-			btp, ep := getScratch(q*permSub), getScratch(permSub)
-			defer scratch.Put(btp)
-			defer scratch.Put(ep)
-			bt, eta := *btp, *ep
-			for s := lo; s < hi; s += permSub {
-				m := min(permSub, hi-s)
-				nf.gather(bt, s, m)
+			nf.blocks(lo, hi, func(s, m int, bt, eta []float64) {
 				for k := 0; k < K; k++ {
 					if !moved[k] {
 						continue
 					}
-					et := eta[:m]
-					for r := range et {
-						et[r] = c0[k]
+					for r := range eta {
+						eta[r] = c0[k]
 					}
 					for a, b := range beta[k*q : (k+1)*q] {
-						floats.AddScaled(et, b, bt[a*permSub:a*permSub+m])
+						floats.AddScaled(eta, b, bt[a*permSub:a*permSub+m])
 					}
 					e := es[k][s : s+m]
-					for r, v := range et {
+					for r, v := range eta {
 						e[r] = sigmoid(v)
 					}
 				}
-			}
+			})
 		})
 		for k := range active {
 			if moved[k] && last[k] {
